@@ -1,0 +1,286 @@
+"""Read a diene library and standardise it: one record per input row, each with a status.
+
+Formats: CSV with columns ``id`` and ``smiles`` (other columns are carried
+through), ``.smi`` (SMILES then an optional id per line) and ``.sdf``.
+A file that cannot be read at all raises :class:`LibraryError` naming the
+file and the problem; every readable row becomes a :class:`Record`, whatever
+is wrong with it.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import itertools
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from rdkit import Chem, RDLogger
+from rdkit.Chem import rdMolDescriptors
+from rdkit.Chem.EnumerateStereoisomers import EnumerateStereoisomers, StereoEnumerationOptions
+from rdkit.Chem.MolStandardize import rdMolStandardize
+
+from .backends import SUPPORTED_ELEMENTS
+from .sites import find_sites
+
+RDLogger.DisableLog("rdApp.*")
+
+MAX_DIENE_STEREO_ISOMERS = 8
+NOATOM = 4294967295
+
+
+class LibraryError(ValueError):
+    """The library file as a whole cannot be read."""
+
+
+@dataclass
+class Isomer:
+    """One fully specified structure to compute: canonical isomeric SMILES and InChIKey."""
+
+    smiles: str
+    inchikey: str
+    n_sites: int
+
+
+@dataclass
+class Record:
+    """One input row. status is 'ok' (to compute) or a reason code; message says why."""
+
+    row: int
+    id: str
+    smiles: str
+    extra: dict = field(default_factory=dict)
+    status: str = "ok"
+    message: str = ""
+    std_smiles: str = ""
+    isomers: list[Isomer] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+    def fail(self, status: str, message: str) -> "Record":
+        self.status, self.message = status, message
+        return self
+
+
+@dataclass
+class Limits:
+    """Caps that keep one diene from eating the run."""
+
+    max_heavy_atoms: int = 60
+    max_rotatable_bonds: int = 12
+
+
+# ---------------------------------------------------------------- reading
+
+def _decode(path: Path) -> str:
+    data = path.read_bytes()
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise LibraryError(f"{path}: not UTF-8 text (undecodable byte at offset {exc.start}); "
+                           "save the file as UTF-8 and run again") from None
+
+
+def _read_csv(path: Path) -> list[tuple[str, str, dict]]:
+    text = _decode(path)
+    try:
+        dialect = csv.Sniffer().sniff(text[:4096], delimiters=",;\t")
+    except csv.Error:
+        dialect = csv.excel
+    reader = csv.reader(io.StringIO(text), dialect)
+    try:
+        header = next(reader)
+    except StopIteration:
+        raise LibraryError(f"{path}: the file is empty") from None
+    names = [h.strip() for h in header]
+    lower = [n.lower() for n in names]
+    missing = [c for c in ("id", "smiles") if c not in lower]
+    if missing:
+        raise LibraryError(f"{path}: needs columns 'id' and 'smiles'; missing {missing}, "
+                           f"found {names}")
+    i_id, i_smi = lower.index("id"), lower.index("smiles")
+    rows = []
+    for cells in reader:
+        if not any(c.strip() for c in cells):
+            continue  # blank line, not a row
+        cells = cells + [""] * (len(names) - len(cells))
+        extra = {n: cells[k] for k, n in enumerate(names) if k not in (i_id, i_smi)}
+        rows.append((cells[i_id].strip(), cells[i_smi].strip(), extra))
+    return rows
+
+
+def _read_smi(path: Path) -> list[tuple[str, str, dict]]:
+    rows = []
+    for line in _decode(path).splitlines():
+        if not line.strip() or line.lstrip().startswith("#"):
+            continue
+        parts = line.split(None, 1)
+        rows.append((parts[1].strip() if len(parts) > 1 else "", parts[0], {}))
+    return rows
+
+
+def _read_sdf(path: Path) -> list[tuple[str, str, dict]]:
+    rows = []
+    with open(path, "rb") as fh:
+        for mol in Chem.ForwardSDMolSupplier(fh, sanitize=True, removeHs=False):
+            if mol is None:
+                rows.append(("", "", {"_sdf_error": "unreadable SDF record"}))
+                continue
+            props = mol.GetPropsAsDict()
+            rid = str(props.pop("id", "") or (mol.GetProp("_Name") if mol.HasProp("_Name") else ""))
+            rows.append((rid.strip(), Chem.MolToSmiles(mol), {k: str(v) for k, v in props.items()}))
+    return rows
+
+
+def read_rows(path) -> list[tuple[str, str, dict]]:
+    """(id, smiles, extra columns) per row of a library file."""
+    path = Path(path)
+    if not path.is_file():
+        raise LibraryError(f"{path}: no such file")
+    suffix = path.suffix.lower()
+    if suffix in (".smi", ".smiles", ".txt"):
+        return _read_smi(path)
+    if suffix in (".sdf", ".sd", ".mol"):
+        return _read_sdf(path)
+    return _read_csv(path)
+
+
+# ---------------------------------------------------------- standardising
+
+def standardise(mol: Chem.Mol) -> tuple[Chem.Mol, list[str]]:
+    """Largest organic fragment, neutralised where possible; stereo kept."""
+    notes = []
+    n_frag = len(Chem.GetMolFrags(mol))
+    mol = rdMolStandardize.Cleanup(mol)
+    if n_frag > 1:
+        mol = rdMolStandardize.LargestFragmentChooser(preferOrganic=True).choose(mol)
+        notes.append(f"kept the largest organic fragment of {n_frag}")
+    charged_before = any(a.GetFormalCharge() for a in mol.GetAtoms())
+    mol = rdMolStandardize.Uncharger().uncharge(mol)
+    if charged_before and not any(a.GetFormalCharge() for a in mol.GetAtoms()):
+        notes.append("neutralised")
+    if any(a.GetIsotope() for a in mol.GetAtoms()):
+        notes.append("isotope labels kept in the key, ignored by GFN2-xTB")
+    # a fresh parse gives clean stereo perception for what follows
+    return Chem.MolFromSmiles(Chem.MolToSmiles(mol)), notes
+
+
+def _diene_bonds(mol: Chem.Mol) -> set[int]:
+    bonds = set()
+    for site in find_sites(mol):
+        a1, a2, a3, a4 = site.atoms
+        bonds.add(mol.GetBondBetweenAtoms(a1, a2).GetIdx())
+        bonds.add(mol.GetBondBetweenAtoms(a3, a4).GetIdx())
+    return bonds
+
+
+def enumerate_diene_stereo(mol: Chem.Mol) -> tuple[list[Chem.Mol], list[str]]:
+    """Fully specified isomers of `mol`.
+
+    Unspecified E/Z on a diene double bond is enumerated (each isomer is
+    computed and reported). Other unspecified stereo (stereocentres, other
+    double bonds) is fixed to the first isomer RDKit enumerates, and said so.
+    """
+    notes = []
+    diene_bonds = _diene_bonds(mol)
+    open_bonds = []
+    other_open = 0
+    for info in Chem.FindPotentialStereo(mol):
+        if info.specified != Chem.StereoSpecified.Unspecified:
+            continue
+        if info.type == Chem.StereoType.Bond_Double and info.centeredOn in diene_bonds:
+            ca = list(info.controllingAtoms)
+            left = ca[0] if ca[0] != NOATOM else ca[1]
+            right = ca[2] if ca[2] != NOATOM else ca[3]
+            open_bonds.append((info.centeredOn, left, right))
+        else:
+            other_open += 1
+    isomers = []
+    for choice in itertools.product((Chem.BondStereo.STEREOTRANS, Chem.BondStereo.STEREOCIS),
+                                    repeat=len(open_bonds)):
+        iso = Chem.Mol(mol)
+        for (b, left, right), stereo in zip(open_bonds, choice):
+            bond = iso.GetBondWithIdx(b)
+            bond.SetStereoAtoms(left, right)
+            bond.SetStereo(stereo)
+        isomers.append(iso)
+        if len(isomers) > MAX_DIENE_STEREO_ISOMERS:
+            break
+    if open_bonds:
+        n_unique = len({Chem.MolToSmiles(m) for m in isomers[:MAX_DIENE_STEREO_ISOMERS]})
+        notes.append(f"E/Z unspecified on {len(open_bonds)} diene double bond(s): "
+                     f"{n_unique} isomers computed, the most reactive reported")
+    if other_open:
+        opts = StereoEnumerationOptions(onlyUnassigned=True, unique=True, maxIsomers=1)
+        isomers = [next(iter(EnumerateStereoisomers(iso, options=opts)), iso) for iso in isomers]
+        notes.append(f"{other_open} other unspecified stereo element(s) fixed arbitrarily")
+    return isomers, notes
+
+
+def prepare_record(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Record:
+    """Parse, standardise and check one row; find its isomers and diene sites."""
+    rec = Record(row=row, id=rid, smiles=smiles, extra=dict(extra))
+    if "_sdf_error" in rec.extra:
+        return rec.fail("invalid_structure", rec.extra.pop("_sdf_error"))
+    if not smiles:
+        return rec.fail("empty_smiles", "the smiles cell is empty")
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        return rec.fail("invalid_smiles", "RDKit cannot parse this SMILES")
+    if not rid:
+        rec.notes.append("id cell is empty")
+    mol, notes = standardise(mol)
+    rec.notes += notes
+    rec.std_smiles = Chem.MolToSmiles(mol)
+    bad = sorted({a.GetSymbol() for a in mol.GetAtoms()
+                  if a.GetAtomicNum() not in SUPPORTED_ELEMENTS})
+    if bad:
+        return rec.fail("unsupported_element", f"elements outside the GFN2-xTB setup: {', '.join(bad)}")
+    if any(a.GetNumRadicalElectrons() for a in mol.GetAtoms()):
+        return rec.fail("radical", "open-shell structure (radical); only closed-shell dienes are treated")
+    charge = Chem.GetFormalCharge(mol)
+    if charge:
+        return rec.fail("charged", f"net charge {charge:+d} remains after neutralisation")
+    if not find_sites(mol):
+        return rec.fail("no_diene", "no conjugated C=C-C=C unit")
+    heavy = mol.GetNumHeavyAtoms()
+    if heavy > limits.max_heavy_atoms:
+        return rec.fail("too_large", f"{heavy} heavy atoms; the cap is {limits.max_heavy_atoms} "
+                                     "(config max_heavy_atoms)")
+    n_rot = rdMolDescriptors.CalcNumRotatableBonds(mol)
+    if n_rot > limits.max_rotatable_bonds:
+        return rec.fail("too_flexible", f"{n_rot} rotatable bonds; the cap is "
+                                        f"{limits.max_rotatable_bonds} (config max_rotatable_bonds)")
+    isomers, notes = enumerate_diene_stereo(mol)
+    rec.notes += notes
+    seen = set()
+    for iso in isomers[:MAX_DIENE_STEREO_ISOMERS]:
+        iso_smiles = Chem.MolToSmiles(iso)
+        if iso_smiles not in seen:
+            seen.add(iso_smiles)
+            rec.isomers.append(Isomer(iso_smiles, Chem.MolToInchiKey(iso), len(find_sites(iso))))
+    return rec
+
+
+def read_library(path, limits: Limits | None = None) -> list[Record]:
+    """Every row of the library as a Record, in input order (row numbers 1-based)."""
+    limits = limits or Limits()
+    records = [prepare_record(i, rid, smi, extra, limits)
+               for i, (rid, smi, extra) in enumerate(read_rows(path), start=1)]
+    first_id: dict[str, int] = {}
+    first_key: dict[str, int] = {}
+    for rec in records:
+        if rec.id:
+            if rec.id in first_id:
+                rec.notes.append(f"id also used on row {first_id[rec.id]}")
+            first_id.setdefault(rec.id, rec.row)
+        if rec.isomers:
+            k = rec.isomers[0].inchikey
+            if k in first_key:
+                rec.notes.append(f"same structure as row {first_key[k]}")
+            first_key.setdefault(k, rec.row)
+    for rec in records:
+        if rec.status == "ok":
+            rec.message = "; ".join(rec.notes)
+        elif rec.notes:
+            rec.message = "; ".join([rec.message] + rec.notes)
+    return records

@@ -1,0 +1,206 @@
+"""From per-structure results to the ranked table: features per site, the
+reactivity model on the reference set, predictions, best site and isomer,
+rank. Pure data in, data out; files are written by :mod:`dienes.outputs`."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+from rdkit import Chem
+
+from . import model as mdl
+from .orbitals import demand, regio_hint
+
+NOT_RANKED_OK = ""  # rank cell of a row that is not ranked
+
+
+def site_features(site: dict, dienophile: dict) -> dict:
+    """Model features of one computed site (units in the names)."""
+    normal = dienophile["lumo_eV"] - site["homo_eV"]
+    inverse = site["lumo_eV"] - dienophile["homo_eV"]
+    rf = max(site["reactive_fraction"], 1e-9)
+    return {"scis_penalty_kJmol": site["scis_penalty_kJmol"], "homo_eV": site["homo_eV"],
+            "lumo_eV": site["lumo_eV"], "gap_normal_eV": normal, "gap_inverse_eV": inverse,
+            "demand": "normal" if normal <= inverse else "inverse",
+            "reactive_log10_fraction": math.log10(rf)}
+
+
+def _usable_sites(result: dict) -> list[dict]:
+    return [s for s in result.get("sites", []) if s["status"] == "ok"]
+
+
+def reference_site(result: dict) -> dict | None:
+    """The site a reference diene is fitted with: lowest penalty, then highest HOMO."""
+    sites = _usable_sites(result)
+    if not sites:
+        return None
+    return min(sites, key=lambda s: (round(s["scis_penalty_kJmol"], 3), -s["homo_eV"]))
+
+
+def canonical(smiles: str) -> str:
+    m = Chem.MolFromSmiles(smiles)
+    return Chem.MolToSmiles(m) if m is not None else smiles
+
+
+def fit_reference(reference: list[dict], results: dict, dienophile: dict, config: dict):
+    """Fit the model on the reference records.
+
+    reference: manifest records of the reference file (with extra columns
+    log10_k, dienophile_smiles, temperature_K). Returns (fit, summary dict,
+    reference table DataFrame).
+    """
+    features = list(config["model"]["features"])
+    run_dienophile = canonical(config["dienophile"])
+    rows = []
+    for rec in reference:
+        row = {"id": rec["id"], "smiles": rec["smiles"], "used": False, "reason": ""}
+        try:
+            row["log10_k"] = float(rec["extra"].get("log10_k", "nan"))
+        except ValueError:
+            row["log10_k"] = float("nan")
+        row["dienophile_smiles"] = rec["extra"].get("dienophile_smiles", "")
+        row["temperature_K"] = float(rec["extra"].get("temperature_K") or config["temperature_K"])
+        row["provenance"] = rec["extra"].get("provenance", "")
+        if rec["status"] != "ok" or not rec["isomers"]:
+            row["reason"] = f"{rec['status']}: {rec['message']}"
+        elif not np.isfinite(row["log10_k"]):
+            row["reason"] = "log10_k missing or not a number"
+        else:
+            res = results.get(rec["isomers"][0]["key"], {})
+            site = reference_site(res) if res.get("status") == "ok" else None
+            if site is None:
+                row["reason"] = f"structure {res.get('status', 'missing')}: {res.get('message', '')}"
+            else:
+                row.update(site_features(site, dienophile))
+                row["used"] = True
+        rows.append(row)
+    table = pd.DataFrame(rows)
+    used = table[table["used"]]
+    same = used[used["dienophile_smiles"].map(canonical) == run_dienophile]
+    note = ""
+    if len(same) >= len(features) + 3:
+        train = same
+    else:
+        train = used
+        if len(used):
+            note = ("the reference dienophile differs from the run's: predictions are on the "
+                    "reference set's scale")
+    if len(train) < len(features) + 3:
+        raise ValueError(f"only {len(train)} usable reference dienes; the model needs at least "
+                         f"{len(features) + 3}")
+    T_ref = float(train["temperature_K"].median())
+    X, y = train[features].to_numpy(float), train["log10_k"].to_numpy(float)
+    fit, comparison, y_cv = mdl.select(X, y, features, T_ref)
+    table.loc[train.index, "in_training_set"] = True
+    table["in_training_set"] = table.get("in_training_set", False).fillna(False).astype(bool)
+    table.loc[train.index, "log10_k_cv"] = y_cv
+    table.loc[train.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
+    summary = {"n_reference": int(len(train)), "features": features,
+               "variant": fit.variant, "comparison": comparison,
+               **comparison[fit.variant],
+               "coefficients": dict(zip(features, fit.coef_per_unit)),
+               "coefficient_se": dict(zip(features, fit.coef_se)),
+               "intercept": fit.intercept, "residual_sd_log10k": fit.resid_sd,
+               "reference_temperature_K": T_ref,
+               "physical_penalty_coefficient": -mdl.log10_units_per_kjmol(T_ref),
+               "interval": config["model"]["interval"], "note": note}
+    return fit, summary, table
+
+
+def predict_sites(site_rows: pd.DataFrame, fit, config: dict) -> pd.DataFrame:
+    ok = site_rows["site_status"] == "ok"
+    out = site_rows.copy()
+    for col in ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage"):
+        out[col] = np.nan
+    out["in_domain"] = pd.Series([None] * len(out), dtype=object)
+    if ok.any():
+        X = out.loc[ok, fit.features].to_numpy(float)
+        pred, lo, hi, lev, dom = mdl.predict(fit, X, config["model"]["interval"])
+        out.loc[ok, "log10_k_pred"] = pred
+        out.loc[ok, "log10_k_low"] = lo
+        out.loc[ok, "log10_k_high"] = hi
+        out.loc[ok, "leverage"] = lev
+        out.loc[ok, "in_domain"] = list(map(bool, dom))
+    return out
+
+
+def site_table(records: list[dict], results: dict, dienophile: dict) -> pd.DataFrame:
+    """One row per (input row, isomer, site) that was computed."""
+    rows = []
+    for rec in records:
+        if rec["status"] != "ok":
+            continue
+        for iso in rec["isomers"]:
+            res = results.get(iso["key"], {"status": "missing", "message": "no result file"})
+            for site in res.get("sites", []):
+                row = {"row": rec["row"], "id": rec["id"], "isomer_smiles": iso["smiles"],
+                       "key": iso["key"], "structure_status": res["status"],
+                       "site": site["label"], "site_kind": site["kind"], "aromatic": site["aromatic"],
+                       "site_status": site["status"], "reactive_fraction": site["reactive_fraction"],
+                       "dihedral_min_deg": site["dihedral_min_deg"],
+                       "homo_share": site["homo_share"]}
+                if site["status"] == "ok":
+                    row.update(site_features(site, dienophile))
+                    d = site["homo_termini"]
+                    row["regio_hint"] = regio_hint(
+                        tuple(d), tuple(dienophile["lumo_termini"]),
+                        (site["atoms"][0] + 1, site["atoms"][3] + 1),
+                        tuple(i + 1 for i in dienophile["reactive_bond"]))
+                else:
+                    row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
+                                "lumo_eV": site["lumo_eV"]})
+                rows.append(row)
+    return pd.DataFrame(rows)
+
+
+RANKING_COLUMNS = ["rank", "id", "smiles", "status", "message", "log10_k_pred", "log10_k_low",
+                   "log10_k_high", "in_domain", "scis_penalty_kJmol", "reactive_fraction",
+                   "homo_eV", "lumo_eV", "gap_normal_eV", "gap_inverse_eV", "demand", "regio_hint",
+                   "best_site", "site_kind", "n_sites", "dihedral_min_deg", "isomer_smiles",
+                   "n_isomers", "structure_key", "n_gradients", "converged", "row"]
+
+
+def rank_table(records: list[dict], results: dict, sites: pd.DataFrame) -> pd.DataFrame:
+    """One row per input record, in input order, best isomer and site of each."""
+    rows = []
+    for rec in records:
+        row = {"row": rec["row"], "id": rec["id"], "smiles": rec["smiles"], "status": rec["status"],
+               "message": rec["message"], "n_isomers": len(rec["isomers"])}
+        for k, v in rec.get("extra", {}).items():
+            row[k if k not in RANKING_COLUMNS else f"input_{k}"] = v
+        if rec["status"] == "ok":
+            mine = sites[sites["row"] == rec["row"]] if len(sites) else sites
+            ok = mine[mine["site_status"] == "ok"] if len(mine) else mine
+            if len(ok) and ok["log10_k_pred"].notna().any():
+                best = ok.loc[ok["log10_k_pred"].idxmax()]
+                res = results[best["key"]]
+                row.update({c: best[c] for c in
+                            ("log10_k_pred", "log10_k_low", "log10_k_high", "in_domain",
+                             "scis_penalty_kJmol", "reactive_fraction", "homo_eV", "lumo_eV",
+                             "gap_normal_eV", "gap_inverse_eV", "demand", "regio_hint",
+                             "site_kind", "dihedral_min_deg", "isomer_smiles")})
+                row.update({"best_site": best["site"], "n_sites": int((mine["key"] == best["key"]).sum()),
+                            "structure_key": best["key"], "n_gradients": res.get("n_gradients"),
+                            "converged": res.get("converged")})
+                extra = res.get("message", "")
+                row["message"] = "; ".join(filter(None, [row["message"], extra]))
+            else:
+                statuses = [results.get(i["key"], {}).get("status", "missing") for i in rec["isomers"]]
+                msgs = [results.get(i["key"], {}).get("message", "no result file") for i in rec["isomers"]]
+                row["status"] = statuses[0] if statuses else "missing"
+                row["message"] = "; ".join(filter(None, [row["message"]] + sorted(set(msgs))))
+                if rec["isomers"]:
+                    row["structure_key"] = rec["isomers"][0]["key"]
+        rows.append(row)
+    table = pd.DataFrame(rows)
+    for col in RANKING_COLUMNS:
+        if col not in table:
+            table[col] = np.nan
+    ranked = table["status"].eq("ok") & table["log10_k_pred"].notna()
+    order = table.loc[ranked].sort_values(["log10_k_pred", "row"], ascending=[False, True]).index
+    table["rank"] = pd.Series(dtype="Int64")
+    table.loc[order, "rank"] = np.arange(1, len(order) + 1)
+    table["rank"] = table["rank"].astype("Int64")
+    return table[RANKING_COLUMNS + [c for c in table.columns if c not in RANKING_COLUMNS]]

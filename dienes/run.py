@@ -1,0 +1,96 @@
+"""The steps of a run, each one call for a workflow rule:
+prepare (read the library once) -> compute (one structure) -> dienophile ->
+rank (model, ranking, outputs)."""
+
+from __future__ import annotations
+
+import hashlib
+import logging
+from pathlib import Path
+
+from . import library, outputs, pipeline, ranking
+from . import settings as cfg
+
+log = logging.getLogger("dienes")
+
+
+def _sha256(path) -> str:
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
+def _record_dict(rec: library.Record, structure_settings: dict) -> dict:
+    return {"row": rec.row, "id": rec.id, "smiles": rec.smiles, "extra": rec.extra,
+            "status": rec.status, "message": rec.message, "std_smiles": rec.std_smiles,
+            "isomers": [{"smiles": i.smiles, "inchikey": i.inchikey,
+                         "key": cfg.structure_key(i.inchikey, structure_settings)}
+                        for i in rec.isomers]}
+
+
+def prepare(config: dict, manifest_path) -> dict:
+    """Read and standardise the library and the reference set; write the manifest
+    that lists every record and every structure to compute."""
+    config = cfg.validate(config)
+    st = cfg.structure_settings(config)
+    limits = library.Limits(**config["limits"])
+    records = [_record_dict(r, st) for r in library.read_library(config["library"], limits)]
+    reference = [_record_dict(r, st) for r in library.read_library(config["reference"], limits)]
+    structures = {}
+    for rec in records + reference:
+        for iso in rec["isomers"]:
+            structures[iso["key"]] = iso["smiles"]
+    manifest = {"library": str(config["library"]), "library_sha256": _sha256(config["library"]),
+                "reference": str(config["reference"]), "reference_sha256": _sha256(config["reference"]),
+                "settings": st, "seed": config["seed"], "records": records, "reference_records": reference,
+                "structures": dict(sorted(structures.items()))}
+    pipeline.write_json(manifest, manifest_path)
+    return manifest
+
+
+def compute(smiles: str, key: str, config: dict, out_path) -> dict:
+    st = cfg.structure_settings(cfg.validate(config))
+    result = pipeline.compute_structure(smiles, st, key=key)
+    pipeline.write_json(result, out_path)
+    return result
+
+
+def dienophile(config: dict, out_path) -> dict:
+    config = cfg.validate(config)
+    result = pipeline.compute_dienophile(config["dienophile"], cfg.structure_settings(config))
+    pipeline.write_json(result, out_path)
+    return result
+
+
+def load_results(manifest: dict, result_dir) -> dict:
+    """Per-structure results by key; a missing or unreadable file becomes a status."""
+    out = {}
+    for key in manifest["structures"]:
+        path = Path(result_dir) / f"{key}.json"
+        try:
+            out[key] = pipeline.read_json(path)
+        except FileNotFoundError:
+            out[key] = {"status": "missing", "message": f"no result file {path.name}"}
+        except ValueError as exc:
+            out[key] = {"status": "corrupt_result", "message": f"{path.name} unreadable: {exc}"}
+    return out
+
+
+def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir) -> list[str]:
+    config = cfg.validate(config)
+    manifest = pipeline.read_json(manifest_path)
+    results = load_results(manifest, result_dir)
+    dph = pipeline.read_json(dienophile_path)
+    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], results, dph, config)
+    sites = ranking.site_table(manifest["records"], results, dph)
+    if len(sites):
+        sites = ranking.predict_sites(sites, fit, config)
+    table = ranking.rank_table(manifest["records"], results, sites)
+    out_dir = Path(out_dir)
+    outputs.write_table(table, out_dir / "ranking.csv")
+    outputs.write_table(sites, out_dir / "sites.csv")
+    outputs.write_table(ref_table, out_dir / "reference_fit.csv")
+    summary |= {"reference_file": manifest["reference"], "reference_sha256": manifest["reference_sha256"],
+                "library_file": manifest["library"], "library_sha256": manifest["library_sha256"],
+                "seed": manifest["seed"], "settings": manifest["settings"],
+                "dienophile": {k: dph[k] for k in ("smiles", "homo_eV", "lumo_eV")}}
+    outputs.write_model(summary, out_dir / "model.json")
+    return outputs.summary_lines(table, out_dir)

@@ -1,0 +1,23 @@
+rule compute_structure:
+    output:
+        "results/structures/{key}.json",
+    params:
+        smiles=get_compute_params,
+    log:
+        "logs/structures/{key}.log",
+    threads: 1
+    resources:
+        mem_mb=1000,
+        runtime=60,
+    script:
+        "../scripts/compute_structure.py"
+
+
+rule compute_dienophile:
+    output:
+        "results/dienophile_{dhash}.json",
+    log:
+        "logs/dienophile_{dhash}.log",
+    threads: 1
+    script:
+        "../scripts/compute_dienophile.py"

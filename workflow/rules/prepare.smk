@@ -1,0 +1,10 @@
+checkpoint prepare:
+    input:
+        library=config["library"],
+        reference=config["reference"],
+    output:
+        manifest="results/manifest.json",
+    log:
+        "logs/prepare.log",
+    script:
+        "../scripts/prepare.py"

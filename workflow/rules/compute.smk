@@ -3,6 +3,8 @@ rule compute_structure:
         "results/structures/{key}.json",
     params:
         smiles=get_compute_params,
+    conda:
+        "../envs/dienes.yaml"
     log:
         "logs/structures/{key}.log",
     threads: 1
@@ -16,6 +18,8 @@ rule compute_structure:
 rule compute_dienophile:
     output:
         "results/dienophile_{dhash}.json",
+    conda:
+        "../envs/dienes.yaml"
     log:
         "logs/dienophile_{dhash}.log",
     threads: 1

@@ -4,6 +4,8 @@ checkpoint prepare:
         reference=config["reference"],
     output:
         manifest="results/manifest.json",
+    conda:
+        "../envs/dienes.yaml"
     log:
         "logs/prepare.log",
     script:

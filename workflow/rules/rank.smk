@@ -8,6 +8,8 @@ rule rank:
         sites="results/sites.csv",
         model="results/model.json",
         reference="results/reference_fit.csv",
+    conda:
+        "../envs/dienes.yaml"
     log:
         "logs/rank.log",
     script:

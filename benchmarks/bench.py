@@ -1,0 +1,69 @@
+"""Speed and memory of the per-structure computation.
+
+Prints, for a fixed panel of dienes, wall time, GFN2-xTB gradient calls and
+peak memory, and every time as a ratio to a baseline measured in the same
+process: the time of one GFN2-xTB single point of 1,3-butadiene. Ratios move
+with the code, not with the machine. Run: python benchmarks/bench.py [--backend tblite]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import resource
+import statistics
+import time
+
+os.environ.setdefault("OMP_NUM_THREADS", "1")
+
+from rdkit import Chem  # noqa: E402
+from rdkit.Chem import AllChem  # noqa: E402
+
+from dienes import settings as cfg  # noqa: E402
+from dienes.backends import Molecule, Settings  # noqa: E402
+from dienes.pipeline import compute_structure  # noqa: E402
+
+PANEL = ["C=CC=C", "C/C=C/C=C", "C/C=C\\C=C", "C1=CCC=C1", "C1=CCCC=C1", "CO/C=C/C=C",
+         "C=C1CCCCC1=C", "C=C/C=C/c1ccccc1", "CC(C)C1=CC=C(C)CC1", "C=CC(=C)CCC=C(C)C"]
+
+
+def baseline_singlepoint_s(backend: str, repeats: int = 50) -> float:
+    m = Chem.AddHs(Chem.MolFromSmiles("C=CC=C"))
+    AllChem.EmbedMolecule(m, randomSeed=1)
+    pos = m.GetConformer().GetPositions()
+    mol = Molecule([a.GetAtomicNum() for a in m.GetAtoms()], Settings(backend))
+    mol.singlepoint(pos)
+    t = time.perf_counter()
+    for k in range(repeats):
+        mol.singlepoint(pos + 1e-4 * k)
+    return (time.perf_counter() - t) / repeats
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--backend", default="xtb-python")
+    ap.add_argument("--config", default=os.path.join(os.path.dirname(__file__), "..", "config", "config.yaml"))
+    args = ap.parse_args()
+    config = cfg.load(args.config)
+    config["backend"] = args.backend
+    st = cfg.structure_settings(config)
+    base = baseline_singlepoint_s(args.backend)
+    print(f"baseline: one GFN2-xTB single point of butadiene = {base * 1e3:.2f} ms ({args.backend})")
+    print(f"{'smiles':<26}{'status':<10}{'time_s':>8}{'x_base':>10}{'grads':>7}{'ms/grad':>9}")
+    times, grads = [], []
+    for smi in PANEL:
+        t = time.perf_counter()
+        r = compute_structure(smi, st)
+        dt = time.perf_counter() - t
+        times.append(dt)
+        grads.append(r.get("n_gradients", 0))
+        print(f"{smi:<26}{r['status']:<10}{dt:8.2f}{dt / base:10.0f}{grads[-1]:7d}"
+              f"{1e3 * dt / max(grads[-1], 1):9.2f}")
+    peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(f"median per diene: {statistics.median(times):.2f} s = {statistics.median(times) / base:.0f} x baseline; "
+          f"median gradient calls {statistics.median(grads):.0f}; total {sum(times):.1f} s; "
+          f"peak RSS {peak_mb:.0f} MB")
+
+
+if __name__ == "__main__":
+    main()

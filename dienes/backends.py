@@ -47,6 +47,28 @@ class BackendError(RuntimeError):
     """The electronic-structure calculation failed (after all retries)."""
 
 
+_MODULES = {"xtb-python": "xtb.interface", "tblite": "tblite.interface"}
+
+
+def available(name: str) -> bool:
+    """Whether the backend's Python package can be imported here."""
+    import importlib.util
+    try:
+        return importlib.util.find_spec(_MODULES[name].split(".")[0]) is not None
+    except (KeyError, ValueError):
+        return False
+
+
+def require(name: str) -> None:
+    if name not in _MODULES:
+        raise ValueError(f"unknown backend {name!r}; choose from {BACKENDS}")
+    if not available(name):
+        other = [b for b in BACKENDS if b != name and available(b)]
+        hint = f"; set backend: {other[0]} in the config" if other else ""
+        raise BackendError(f"backend {name!r} is not installed here (xtb-python has wheels up to "
+                           f"Python 3.11){hint}")
+
+
 @dataclass
 class SinglePoint:
     """One GFN2-xTB single point.

@@ -15,8 +15,8 @@ import numpy as np
 from rdkit import Chem, rdBase
 
 from . import __version__
-from .backends import BackendError, Molecule, Settings as BackendSettings
-from .conformers import ConformerError, ConformerSettings, embed, positions, relax
+from .backends import BackendError, Molecule, Settings as BackendSettings, atom_orbital_weights
+from .conformers import ConformerError, ConformerSettings, embed, positions, prune, relax
 from .optimize import backend_energy_forces, optimize
 from .orbitals import site_frontier
 from .sites import find_sites
@@ -115,24 +115,37 @@ def compute_structure(smiles: str, settings: dict, key: str = "") -> dict:
     }
 
 
-def compute_dienophile(smiles: str, settings: dict) -> dict:
-    """Frontier orbitals of the dienophile at its GFN2-xTB minimum, with the LUMO
-    weights on the two carbons of its most LUMO-rich C=C (for the regio hint)."""
-    from .backends import atom_orbital_weights
+def lowest_minimum(smiles: str, settings: dict, n_starts: int = 3):
+    """GFN2-xTB global minimum of a small molecule: the lowest of `n_starts`
+    optimisations from the lowest distinct force-field conformers.
+
+    Returns (mol_h, backend Molecule, OptResult, SinglePoint at the minimum)."""
     mol = Chem.MolFromSmiles(smiles)
     if mol is None:
-        raise ValueError(f"dienophile SMILES {smiles!r} cannot be parsed")
+        raise ValueError(f"SMILES {smiles!r} cannot be parsed")
     mol_h = Chem.AddHs(mol)
     numbers = [a.GetAtomicNum() for a in mol_h.GetAtoms()]
     cs = conformer_settings(settings)
     cids = embed(mol_h, cs)
     energies = {c: relax(mol_h, c) for c in cids}
-    best_cid = min(energies, key=energies.get)
+    starts = prune(mol_h, cids, energies, cs)[:n_starts]
     backend = Molecule(numbers, backend_settings(settings))
     opt = settings.get("optimisation", {})
-    r = optimize(numbers, positions(mol_h, best_cid), backend_energy_forces(backend),
-                 fmax_eV_A=opt.get("fmax_eV_A", 0.01), max_steps=opt.get("max_steps", 300))
-    sp = backend.singlepoint(r.positions_A)
+    ef = backend_energy_forces(backend)
+    best = None
+    for cid in starts:
+        r = optimize(numbers, positions(mol_h, cid), ef,
+                     fmax_eV_A=opt.get("fmax_eV_A", 0.01), max_steps=opt.get("max_steps", 300))
+        if best is None or r.energy_eV < best.energy_eV:
+            best = r
+    return mol_h, backend, best, backend.singlepoint(best.positions_A)
+
+
+def compute_dienophile(smiles: str, settings: dict) -> dict:
+    """Frontier orbitals of the dienophile at its GFN2-xTB minimum, with the LUMO
+    weights on the two carbons of its most LUMO-rich C=C (for the regio hint)."""
+    mol_h, backend, r, sp = lowest_minimum(smiles, settings)
+    numbers = backend.numbers
     lumo = sp.homo_index + 1
     w = atom_orbital_weights(sp, numbers, lumo)
     cc = [(b.GetBeginAtomIdx(), b.GetEndAtomIdx()) for b in mol_h.GetBonds()
@@ -143,6 +156,8 @@ def compute_dienophile(smiles: str, settings: dict) -> dict:
     a, b = max(cc, key=lambda ab: w[ab[0]] + w[ab[1]])
     return {"smiles": smiles, "homo_eV": round(sp.homo_eV, 5), "lumo_eV": round(sp.lumo_eV, 5),
             "reactive_bond": [a, b], "lumo_termini": [round(float(w[a]), 5), round(float(w[b]), 5)],
+            "energy_min_kJmol": round(sp.energy_kJmol, 4), "geometry": {
+                "numbers": numbers.tolist(), "minimum_A": _xyz(r.positions_A)},
             "converged": r.converged, "n_gradients": backend.n_calls, "seed": settings["seed"],
             "settings": settings, "versions": software_versions()}
 

@@ -8,7 +8,7 @@ import hashlib
 import logging
 from pathlib import Path
 
-from . import library, outputs, pipeline, ranking
+from . import backends, library, outputs, pipeline, ranking
 from . import settings as cfg
 
 log = logging.getLogger("dienes")
@@ -30,6 +30,7 @@ def prepare(config: dict, manifest_path) -> dict:
     """Read and standardise the library and the reference set; write the manifest
     that lists every record and every structure to compute."""
     config = cfg.validate(config)
+    backends.require(config["backend"])
     st = cfg.structure_settings(config)
     limits = library.Limits(**config["limits"])
     records = [_record_dict(r, st) for r in library.read_library(config["library"], limits)]
@@ -94,3 +95,38 @@ def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir) -> l
                 "dienophile": {k: dph[k] for k in ("smiles", "homo_eV", "lumo_eV")}}
     outputs.write_model(summary, out_dir / "model.json")
     return outputs.summary_lines(table, out_dir)
+
+
+def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
+    """Rank config['library'] without Snakemake, one structure after another.
+
+    Per-structure results are read from / written to `cache_dir` when given
+    (same file names as the workflow). `reference_ids`, when given, keeps only
+    those reference rows in the fit (for leave-out checks). Returns
+    (ranking DataFrame, sites DataFrame, model summary dict).
+    """
+    import tempfile
+    config = cfg.validate(config)
+    tmp = tempfile.TemporaryDirectory()
+    cache = Path(cache_dir) if cache_dir else Path(tmp.name)
+    manifest = prepare(config, cache / "manifest.json")
+    if reference_ids is not None:
+        manifest["reference_records"] = [r for r in manifest["reference_records"]
+                                         if r["id"] in set(reference_ids)]
+    st = cfg.structure_settings(config)
+    for key, smiles in manifest["structures"].items():
+        path = cache / "structures" / f"{key}.json"
+        if not path.is_file():
+            pipeline.write_json(pipeline.compute_structure(smiles, st, key=key), path)
+    dph_path = cache / f"dienophile_{cfg.settings_hash(st)}_{hashlib.sha256(config['dienophile'].encode()).hexdigest()[:8]}.json"
+    if not dph_path.is_file():
+        dienophile(config, dph_path)
+    results = load_results(manifest, cache / "structures")
+    dph = pipeline.read_json(dph_path)
+    fit, summary, _ = ranking.fit_reference(manifest["reference_records"], results, dph, config)
+    sites = ranking.site_table(manifest["records"], results, dph)
+    if len(sites):
+        sites = ranking.predict_sites(sites, fit, config)
+    table = ranking.rank_table(manifest["records"], results, sites)
+    tmp.cleanup()
+    return table, sites, summary

@@ -19,4 +19,15 @@ def structure_settings(config):
     return cfg.structure_settings(config)
 
 
-BACKENDS = ["xtb-python", "tblite"]
+from dienes.backends import available  # noqa: E402
+
+# every backend importable here; xtb-python has no wheels past Python 3.11
+BACKENDS = [b for b in ("xtb-python", "tblite") if available(b)]
+
+
+@pytest.fixture(scope="session", params=BACKENDS)
+def backend_settings(request, config):
+    """Per-structure settings for each GFN2-xTB backend in turn."""
+    c = dict(config)
+    c["backend"] = request.param
+    return cfg.structure_settings(c)

@@ -21,36 +21,36 @@ def site(smiles, settings):
     return r["sites"][0]
 
 
-def test_butadiene_penalty_in_range(structure_settings):
+def test_butadiene_penalty_in_range(backend_settings):
     # acceptance range 6-16 kJ/mol (project contract); GFN2-xTB gives ~9 kJ/mol here
-    s = site("C=CC=C", structure_settings)
+    s = site("C=CC=C", backend_settings)
     assert 6.0 <= s["scis_penalty_kJmol"] <= 16.0
     assert abs(s["dihedral_min_deg"]) == pytest.approx(180.0, abs=5.0)  # s-trans global minimum
 
 
-def test_cyclopentadiene_is_locked_s_cis(structure_settings):
-    s = site("C1=CCC=C1", structure_settings)
+def test_cyclopentadiene_is_locked_s_cis(backend_settings):
+    s = site("C1=CCC=C1", backend_settings)
     assert s["kind"] == "ring_s_cis"
     assert s["scis_penalty_kJmol"] == 0.0
     assert s["reactive_fraction"] == 1.0
 
 
-def test_z_pentadiene_pays_more_than_e(structure_settings):
+def test_z_pentadiene_pays_more_than_e(backend_settings):
     # (Z)-1,3-pentadiene is the slow isomer: its 1-methyl points into the s-cis diene (common practice)
-    e = site("C/C=C/C=C", structure_settings)["scis_penalty_kJmol"]
-    z = site("C/C=C\\C=C", structure_settings)["scis_penalty_kJmol"]
+    e = site("C/C=C/C=C", backend_settings)["scis_penalty_kJmol"]
+    z = site("C/C=C\\C=C", backend_settings)["scis_penalty_kJmol"]
     assert z > e + 2.0
 
 
-def test_locked_s_trans_is_flagged(structure_settings):
-    r = result("C=C1CCCC=C1", structure_settings)  # 3-methylenecyclohexene
+def test_locked_s_trans_is_flagged(backend_settings):
+    r = result("C=C1CCCC=C1", backend_settings)  # 3-methylenecyclohexene
     assert r["status"] == "locked_s_trans"
     assert r["sites"][0]["scis_penalty_kJmol"] is None
 
 
-def test_ring_that_lets_the_diene_twist(structure_settings):
+def test_ring_that_lets_the_diene_twist(backend_settings):
     # 1,2-dimethylenecyclohexane twists its exocyclic diene away from 0 deg at the minimum
-    s = site("C=C1CCCCC1=C", structure_settings)
+    s = site("C=C1CCCCC1=C", backend_settings)
     assert s["kind"] == "ring_other" and s["status"] == "ok"
     assert abs(s["dihedral_min_deg"]) > 20.0
     assert s["scis_penalty_kJmol"] > 0.0
@@ -61,21 +61,21 @@ def test_ring_that_lets_the_diene_twist(structure_settings):
     "CO/C=C/C=C",                # (E)-1-methoxybutadiene: the methoxy rotamer matters
     "CC(C)=CC=C",                # 4-methyl-1,3-pentadiene
 ])
-def test_penalty_never_negative(smiles, structure_settings):
-    r = result(smiles, structure_settings)
+def test_penalty_never_negative(smiles, backend_settings):
+    r = result(smiles, backend_settings)
     assert r["status"] == "ok"
     assert all(s["scis_penalty_kJmol"] >= 0.0 for s in r["sites"])
     assert min(r["minima_rel_kJmol"]) == 0.0
 
 
-def test_di_tert_butyl_cannot_planarise(structure_settings):
+def test_di_tert_butyl_cannot_planarise(backend_settings):
     # 2,3-di-tert-butylbutadiene does not react (common practice): a huge planar s-cis penalty
-    s = site("C=C(C(C)(C)C)C(=C)C(C)(C)C", structure_settings)
+    s = site("C=C(C(C)(C)C)C(=C)C(C)(C)C", backend_settings)
     assert s["scis_penalty_kJmol"] > 60.0
 
 
-def test_same_input_same_numbers(structure_settings):
-    a = compute_structure("C/C=C/C=C", structure_settings)
-    b = compute_structure("C/C=C/C=C", structure_settings)
+def test_same_input_same_numbers(backend_settings):
+    a = compute_structure("C/C=C/C=C", backend_settings)
+    b = compute_structure("C/C=C/C=C", backend_settings)
     assert a["sites"] == b["sites"]
     assert a["energy_min_kJmol"] == b["energy_min_kJmol"]

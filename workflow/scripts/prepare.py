@@ -1,6 +1,7 @@
 import sys
 
 from _log import setup
+from dienes.backends import BackendError
 from dienes.library import LibraryError
 from dienes.run import prepare
 
@@ -9,5 +10,8 @@ try:
     m = prepare(dict(snakemake.config), snakemake.output.manifest)
 except LibraryError as exc:
     log.error("cannot read the library: %s", exc)
+    sys.exit(1)
+except BackendError as exc:
+    log.error("%s", exc)
     sys.exit(1)
 log.info("library %s: %d rows, %d structures to compute", m["library"], len(m["records"]), len(m["structures"]))

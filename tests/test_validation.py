@@ -1,0 +1,49 @@
+"""Outside references through the project's own functions, on both backends (slow).
+The reference values, sources and tolerances live in dienes/validation.py;
+docs/validation.md is the generated table."""
+import re
+
+import pytest
+
+from dienes import validation
+
+from .conftest import BACKENDS
+
+pytestmark = pytest.mark.slow
+
+NAMES = [c.name for c in validation.checks()]
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+@pytest.mark.parametrize("name", NAMES)
+def test_check_within_tolerance(name, backend):
+    check = next(c for c in validation.checks(backend) if c.name == name)
+    observed = check.observe({})
+    assert check.passes(observed), f"{name}: observed {observed:.3f}, reference {check.reference} ({check.source})"
+
+
+@pytest.mark.parametrize("check", validation.backend_checks(), ids=lambda c: c.name)
+def test_backends_agree(check):
+    observed = check.observe({})
+    assert check.passes(observed), f"{check.name}: {observed:.2e}"
+
+
+def _observed_in_doc():
+    text = validation.DOC_PATH.read_text()
+    out = {}
+    for line in text.splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) == 7 and cells[0] not in ("check", "---"):
+            out[cells[0]] = float(cells[3])
+    return out
+
+
+def test_document_matches_the_code():
+    doc = _observed_in_doc()
+    checks = validation.checks() + validation.backend_checks()
+    assert set(doc) == {c.name for c in checks}, "docs/validation.md is stale: run python -m dienes.validation"
+    for c in checks:
+        observed = c.observe({})
+        assert doc[c.name] == pytest.approx(observed, abs=0.011, rel=0.05), (
+            f"{c.name}: docs say {doc[c.name]}, code gives {observed}; run python -m dienes.validation")
+    assert not re.search(r"\|\s*NO\s*\|", validation.DOC_PATH.read_text())

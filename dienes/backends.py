@@ -187,7 +187,7 @@ class _TbliteSession:
             raise BackendError(str(exc)) from exc
         self._res = res
         return (res.get("energy"), res.get("gradient"), res.get("orbital-energies"),
-                res.get("orbital-occupations"), res.get("orbital-coefficients").T)
+                res.get("orbital-occupations"), res.get("orbital-coefficients"))
 
 
 _SESSIONS = {"xtb-python": _XtbPythonSession, "tblite": _TbliteSession}

@@ -77,14 +77,15 @@ def fit(X: np.ndarray, y: np.ndarray, features: list[str], variant: str,
         y_fit = y - fixed * X[:, j]
         free = [k for k in range(p) if k != j]
     Zf = Z[:, free]
-    if variant == "ridge":
-        reg = Ridge(alpha=RIDGE_ALPHA).fit(Zf, y_fit)
-    else:
-        reg = LinearRegression().fit(Zf, y_fit)
     beta_std = np.zeros(p)
-    beta_std[free] = reg.coef_
+    if not free:                       # only the fixed penalty term: intercept alone
+        b0 = float(np.mean(y_fit))
+    else:
+        reg = (Ridge(alpha=RIDGE_ALPHA) if variant == "ridge" else LinearRegression()).fit(Zf, y_fit)
+        beta_std[free] = reg.coef_
+        b0 = float(reg.intercept_)
     coef = beta_std / scale
-    intercept = float(reg.intercept_ - np.sum(beta_std * mean / scale))
+    intercept = float(b0 - np.sum(beta_std * mean / scale))
     if fixed is not None:
         coef[features.index(PENALTY)] = fixed
     resid = y - (X @ coef + intercept)

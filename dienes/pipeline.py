@@ -148,14 +148,17 @@ def compute_dienophile(smiles: str, settings: dict) -> dict:
     numbers = backend.numbers
     lumo = sp.homo_index + 1
     w = atom_orbital_weights(sp, numbers, lumo)
+    w_homo = atom_orbital_weights(sp, numbers, sp.homo_index)
     cc = [(b.GetBeginAtomIdx(), b.GetEndAtomIdx()) for b in mol_h.GetBonds()
           if b.GetBondType() in (Chem.BondType.DOUBLE, Chem.BondType.TRIPLE)
           and b.GetBeginAtom().GetAtomicNum() == 6 and b.GetEndAtom().GetAtomicNum() == 6]
     if not cc:
         raise ValueError(f"dienophile {smiles!r} has no C=C or C#C bond")
     a, b = max(cc, key=lambda ab: w[ab[0]] + w[ab[1]])
+    ranks = list(Chem.CanonicalRankAtoms(mol_h, breakTies=False))
     return {"smiles": smiles, "homo_eV": round(sp.homo_eV, 5), "lumo_eV": round(sp.lumo_eV, 5),
-            "reactive_bond": [a, b], "lumo_termini": [round(float(w[a]), 5), round(float(w[b]), 5)],
+            "reactive_bond": [a, b], "symmetric_bond": ranks[a] == ranks[b],
+            "homo_termini": [round(float(w_homo[a]), 5), round(float(w_homo[b]), 5)], "lumo_termini": [round(float(w[a]), 5), round(float(w[b]), 5)],
             "energy_min_kJmol": round(sp.energy_kJmol, 4), "geometry": {
                 "numbers": numbers.tolist(), "minimum_A": _xyz(r.positions_A)},
             "converged": r.converged, "n_gradients": backend.n_calls, "seed": settings["seed"],

@@ -11,20 +11,35 @@ import pandas as pd
 from rdkit import Chem
 
 from . import model as mdl
-from .orbitals import demand, regio_hint
+from .orbitals import regio_hint
 
 NOT_RANKED_OK = ""  # rank cell of a row that is not ranked
 
 
-def site_features(site: dict, dienophile: dict) -> dict:
-    """Model features of one computed site (units in the names)."""
+STRAIN_COLUMNS = ("distortion_kJmol", "dienophile_distortion_kJmol", "interaction_kJmol",
+                  "model_barrier_kJmol")
+
+
+def site_features(site: dict, dienophile: dict, strain: dict | None = None) -> dict:
+    """Model features of one computed site (units in the names); `strain` is the
+    site's entry of a strain result, when the step ran."""
     normal = dienophile["lumo_eV"] - site["homo_eV"]
     inverse = site["lumo_eV"] - dienophile["homo_eV"]
     rf = max(site["reactive_fraction"], 1e-9)
-    return {"scis_penalty_kJmol": site["scis_penalty_kJmol"], "homo_eV": site["homo_eV"],
-            "lumo_eV": site["lumo_eV"], "gap_normal_eV": normal, "gap_inverse_eV": inverse,
-            "demand": "normal" if normal <= inverse else "inverse",
-            "reactive_log10_fraction": math.log10(rf)}
+    out = {"scis_penalty_kJmol": site["scis_penalty_kJmol"], "homo_eV": site["homo_eV"],
+           "lumo_eV": site["lumo_eV"], "gap_normal_eV": normal, "gap_inverse_eV": inverse,
+           "demand": "normal" if normal <= inverse else "inverse",
+           "reactive_log10_fraction": math.log10(rf)}
+    for col in STRAIN_COLUMNS:
+        out[col] = strain[col] if strain else float("nan")
+    out["ts_approach"] = strain["approach"] if strain else ""
+    return out
+
+
+def _strain_of(strain: dict | None, key: str, label: str) -> dict | None:
+    if not strain:
+        return None
+    return strain.get(key, {}).get("sites", {}).get(label)
 
 
 def _usable_sites(result: dict) -> list[dict]:
@@ -44,14 +59,16 @@ def canonical(smiles: str) -> str:
     return Chem.MolToSmiles(m) if m is not None else smiles
 
 
-def fit_reference(reference: list[dict], results: dict, dienophile: dict, config: dict):
+def fit_reference(reference: list[dict], results: dict, dienophile: dict, config: dict,
+                  strain: dict | None = None):
     """Fit the model on the reference records.
 
     reference: manifest records of the reference file (with extra columns
     log10_k, dienophile_smiles, temperature_K). Returns (fit, summary dict,
     reference table DataFrame).
     """
-    features = list(config["model"]["features"])
+    features = [f for f in config["model"]["features"]
+                if config["strain"]["enabled"] or f not in STRAIN_COLUMNS]
     run_dienophile = canonical(config["dienophile"])
     rows = []
     for rec in reference:
@@ -68,50 +85,62 @@ def fit_reference(reference: list[dict], results: dict, dienophile: dict, config
         elif not np.isfinite(row["log10_k"]):
             row["reason"] = "log10_k missing or not a number"
         else:
-            res = results.get(rec["isomers"][0]["key"], {})
+            key = rec["isomers"][0]["key"]
+            res = results.get(key, {})
             site = reference_site(res) if res.get("status") == "ok" else None
             if site is None:
                 row["reason"] = f"structure {res.get('status', 'missing')}: {res.get('message', '')}"
             else:
-                row.update(site_features(site, dienophile))
-                row["used"] = True
+                row.update(site_features(site, dienophile, _strain_of(strain, key, site["label"])))
+                missing = [f for f in features if not np.isfinite(row[f])]
+                row["used"] = not missing
+                row["reason"] = f"no value for {missing}" if missing else ""
         rows.append(row)
     table = pd.DataFrame(rows)
-    used = table[table["used"]]
-    same = used[used["dienophile_smiles"].map(canonical) == run_dienophile]
-    note = ""
-    if len(same) >= len(features) + 3:
-        train = same
-    else:
-        train = used
-        if len(used):
-            note = ("the reference dienophile differs from the run's: predictions are on the "
-                    "reference set's scale")
-    if len(train) < len(features) + 3:
-        raise ValueError(f"only {len(train)} usable reference dienes; the model needs at least "
-                         f"{len(features) + 3}")
-    T_ref = float(train["temperature_K"].median())
-    X, y = train[features].to_numpy(float), train["log10_k"].to_numpy(float)
-    fit, comparison, y_cv = mdl.select(X, y, features, T_ref)
-    table.loc[train.index, "in_training_set"] = True
-    table["in_training_set"] = table.get("in_training_set", False).fillna(False).astype(bool)
-    table.loc[train.index, "log10_k_cv"] = y_cv
-    table.loc[train.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
-    summary = {"n_reference": int(len(train)), "features": features,
+    used = table[table["used"]].copy()
+    if len(used) < len(features) + 3:
+        raise ValueError(f"only {len(used)} usable reference dienes; the model needs at least "
+                         f"{len(features) + 3} (see results/reference_fit.csv for the reasons)")
+    used["dienophile_canonical"] = used["dienophile_smiles"].map(canonical)
+    counts = used["dienophile_canonical"].value_counts()
+    base = run_dienophile if run_dienophile in counts.index else counts.index[0]
+    note = "" if base == run_dienophile else (
+        f"the run's dienophile is not in the reference set: predictions are on the scale of {base}")
+    terms = [d for d in counts.index if d != base]
+    term_names = [f"dienophile[{d}]" for d in terms]
+    for d, name in zip(terms, term_names):
+        used[name] = (used["dienophile_canonical"] == d).astype(float)
+    all_features = features + term_names
+    T_ref = float(used.loc[used["dienophile_canonical"] == base, "temperature_K"].median())
+    X, y = used[all_features].to_numpy(float), used["log10_k"].to_numpy(float)
+    fit, comparison, y_cv = mdl.select(X, y, all_features, T_ref)
+    table["in_training_set"] = table["used"]
+    table.loc[used.index, "log10_k_cv"] = y_cv
+    table.loc[used.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
+    ols = mdl.fit(X, y, all_features, "ols", T_ref)
+    summary = {"n_reference": int(len(used)), "features": all_features,
+               "dienophile_terms": dict(zip(term_names, terms)), "base_dienophile": base,
                "variant": fit.variant, "comparison": comparison,
                **comparison[fit.variant],
-               "coefficients": dict(zip(features, fit.coef_per_unit)),
-               "coefficient_se": dict(zip(features, fit.coef_se)),
+               "coefficients": dict(zip(all_features, fit.coef_per_unit)),
+               "coefficient_se": dict(zip(all_features, fit.coef_se)),
                "intercept": fit.intercept, "residual_sd_log10k": fit.resid_sd,
                "reference_temperature_K": T_ref,
                "physical_penalty_coefficient": -mdl.log10_units_per_kjmol(T_ref),
                "interval": config["model"]["interval"], "note": note}
+    if mdl.PENALTY in all_features:
+        j = all_features.index(mdl.PENALTY)
+        summary["ols_penalty_coefficient"] = ols.coef_per_unit[j]
+        summary["ols_penalty_coefficient_se"] = ols.coef_se[j]
     return fit, summary, table
 
 
 def predict_sites(site_rows: pd.DataFrame, fit, config: dict) -> pd.DataFrame:
-    ok = site_rows["site_status"] == "ok"
     out = site_rows.copy()
+    for name in fit.features:
+        if name.startswith("dienophile["):
+            out[name] = 0.0  # predictions for the base dienophile
+    ok = (out["site_status"] == "ok") & out[fit.features].notna().all(axis=1)
     for col in ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage"):
         out[col] = np.nan
     out["in_domain"] = pd.Series([None] * len(out), dtype=object)
@@ -126,7 +155,19 @@ def predict_sites(site_rows: pd.DataFrame, fit, config: dict) -> pd.DataFrame:
     return out
 
 
-def site_table(records: list[dict], results: dict, dienophile: dict) -> pd.DataFrame:
+def site_regio_hint(site: dict, dienophile: dict, demand_type: str) -> str:
+    """Frontier-orbital regioselectivity: diene HOMO with dienophile LUMO in normal
+    demand, diene LUMO with dienophile HOMO in inverse demand."""
+    if demand_type == "inverse":
+        d, e = site["lumo_termini"], dienophile.get("homo_termini", dienophile["lumo_termini"])
+    else:
+        d, e = site["homo_termini"], dienophile["lumo_termini"]
+    return regio_hint(tuple(d), tuple(e), (site["atoms"][0] + 1, site["atoms"][3] + 1),
+                      tuple(i + 1 for i in dienophile["reactive_bond"]))
+
+
+def site_table(records: list[dict], results: dict, dienophile: dict,
+               strain: dict | None = None) -> pd.DataFrame:
     """One row per (input row, isomer, site) that was computed."""
     rows = []
     for rec in records:
@@ -142,12 +183,9 @@ def site_table(records: list[dict], results: dict, dienophile: dict) -> pd.DataF
                        "dihedral_min_deg": site["dihedral_min_deg"],
                        "homo_share": site["homo_share"]}
                 if site["status"] == "ok":
-                    row.update(site_features(site, dienophile))
-                    d = site["homo_termini"]
-                    row["regio_hint"] = regio_hint(
-                        tuple(d), tuple(dienophile["lumo_termini"]),
-                        (site["atoms"][0] + 1, site["atoms"][3] + 1),
-                        tuple(i + 1 for i in dienophile["reactive_bond"]))
+                    row.update(site_features(site, dienophile,
+                                             _strain_of(strain, iso["key"], site["label"])))
+                    row["regio_hint"] = site_regio_hint(site, dienophile, row["demand"])
                 else:
                     row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
                                 "lumo_eV": site["lumo_eV"]})
@@ -158,6 +196,7 @@ def site_table(records: list[dict], results: dict, dienophile: dict) -> pd.DataF
 RANKING_COLUMNS = ["rank", "id", "smiles", "status", "message", "log10_k_pred", "log10_k_low",
                    "log10_k_high", "in_domain", "scis_penalty_kJmol", "reactive_fraction",
                    "homo_eV", "lumo_eV", "gap_normal_eV", "gap_inverse_eV", "demand", "regio_hint",
+                   "distortion_kJmol", "interaction_kJmol", "model_barrier_kJmol",
                    "best_site", "site_kind", "n_sites", "dihedral_min_deg", "isomer_smiles",
                    "n_isomers", "structure_key", "n_gradients", "converged", "row"]
 
@@ -180,6 +219,7 @@ def rank_table(records: list[dict], results: dict, sites: pd.DataFrame) -> pd.Da
                             ("log10_k_pred", "log10_k_low", "log10_k_high", "in_domain",
                              "scis_penalty_kJmol", "reactive_fraction", "homo_eV", "lumo_eV",
                              "gap_normal_eV", "gap_inverse_eV", "demand", "regio_hint",
+                             "distortion_kJmol", "interaction_kJmol", "model_barrier_kJmol",
                              "site_kind", "dihedral_min_deg", "isomer_smiles")})
                 row.update({"best_site": best["site"], "n_sites": int((mine["key"] == best["key"]).sum()),
                             "structure_key": best["key"], "n_gradients": res.get("n_gradients"),
@@ -189,7 +229,12 @@ def rank_table(records: list[dict], results: dict, sites: pd.DataFrame) -> pd.Da
             else:
                 statuses = [results.get(i["key"], {}).get("status", "missing") for i in rec["isomers"]]
                 msgs = [results.get(i["key"], {}).get("message", "no result file") for i in rec["isomers"]]
-                row["status"] = statuses[0] if statuses else "missing"
+                if "ok" in statuses and len(ok):
+                    row["status"] = "not_predicted"
+                    msgs = ["a model descriptor could not be computed for any site "
+                            "(see results/sites.csv)"]
+                else:
+                    row["status"] = statuses[0] if statuses else "missing"
                 row["message"] = "; ".join(filter(None, [row["message"]] + sorted(set(msgs))))
                 if rec["isomers"]:
                     row["structure_key"] = rec["isomers"][0]["key"]

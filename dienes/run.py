@@ -54,11 +54,32 @@ def compute(smiles: str, key: str, config: dict, out_path) -> dict:
     return result
 
 
-def dienophile(config: dict, out_path) -> dict:
+def dienophile(config: dict, smiles: str, out_path) -> dict:
     config = cfg.validate(config)
-    result = pipeline.compute_dienophile(config["dienophile"], cfg.structure_settings(config))
+    result = pipeline.compute_dienophile(smiles, cfg.structure_settings(config))
     pipeline.write_json(result, out_path)
     return result
+
+
+def strain(config: dict, structure_path, dienophile_path, out_path) -> dict:
+    from .strain import strain_for_structure
+    config = cfg.validate(config)
+    st = cfg.structure_settings(config)
+    result = strain_for_structure(pipeline.read_json(structure_path), pipeline.read_json(dienophile_path),
+                                  pipeline.backend_settings(st), config["strain"]["forming_bond_A"])
+    pipeline.write_json(result, out_path)
+    return result
+
+
+def load_strain(manifest: dict, strain_dir, shash: str) -> dict:
+    out = {}
+    for key in manifest["structures"]:
+        path = Path(strain_dir) / f"{key}__{shash}.json"
+        try:
+            out[key] = pipeline.read_json(path)
+        except (FileNotFoundError, ValueError):
+            out[key] = {"status": "missing", "sites": {}}
+    return out
 
 
 def load_results(manifest: dict, result_dir) -> dict:
@@ -75,13 +96,16 @@ def load_results(manifest: dict, result_dir) -> dict:
     return out
 
 
-def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir) -> list[str]:
+def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir, strain_dir=None) -> list[str]:
     config = cfg.validate(config)
     manifest = pipeline.read_json(manifest_path)
     results = load_results(manifest, result_dir)
     dph = pipeline.read_json(dienophile_path)
-    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], results, dph, config)
-    sites = ranking.site_table(manifest["records"], results, dph)
+    st_res = (load_strain(manifest, strain_dir, cfg.strain_hash(config))
+              if config["strain"]["enabled"] and strain_dir else None)
+    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], results, dph, config,
+                                                    st_res)
+    sites = ranking.site_table(manifest["records"], results, dph, st_res)
     if len(sites):
         sites = ranking.predict_sites(sites, fit, config)
     table = ranking.rank_table(manifest["records"], results, sites)
@@ -118,13 +142,24 @@ def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
         path = cache / "structures" / f"{key}.json"
         if not path.is_file():
             pipeline.write_json(pipeline.compute_structure(smiles, st, key=key), path)
-    dph_path = cache / f"dienophile_{cfg.settings_hash(st)}_{hashlib.sha256(config['dienophile'].encode()).hexdigest()[:8]}.json"
-    if not dph_path.is_file():
-        dienophile(config, dph_path)
+    dph_paths = {}
+    for smiles in {config["dienophile"], cfg.strain_dienophile(config)}:
+        dph_paths[smiles] = cache / f"dienophile_{cfg.dienophile_hash(config, smiles)}.json"
+        if not dph_paths[smiles].is_file():
+            dienophile(config, smiles, dph_paths[smiles])
+    st_res = None
+    if config["strain"]["enabled"]:
+        shash = cfg.strain_hash(config)
+        for key in manifest["structures"]:
+            path = cache / "strain" / f"{key}__{shash}.json"
+            if not path.is_file():
+                strain(config, cache / "structures" / f"{key}.json",
+                       dph_paths[cfg.strain_dienophile(config)], path)
+        st_res = load_strain(manifest, cache / "strain", shash)
     results = load_results(manifest, cache / "structures")
-    dph = pipeline.read_json(dph_path)
-    fit, summary, _ = ranking.fit_reference(manifest["reference_records"], results, dph, config)
-    sites = ranking.site_table(manifest["records"], results, dph)
+    dph = pipeline.read_json(dph_paths[config["dienophile"]])
+    fit, summary, _ = ranking.fit_reference(manifest["reference_records"], results, dph, config, st_res)
+    sites = ranking.site_table(manifest["records"], results, dph, st_res)
     if len(sites):
         sites = ranking.predict_sites(sites, fit, config)
     table = ranking.rank_table(manifest["records"], results, sites)

@@ -71,3 +71,21 @@ def settings_hash(settings: dict) -> str:
 def structure_key(inchikey: str, settings: dict) -> str:
     """File-name key of one structure under one set of settings."""
     return f"{inchikey}_{settings_hash(settings)}"
+
+
+ETHYLENE = "C=C"
+
+
+def dienophile_hash(config: dict, smiles: str) -> str:
+    """Names the result file of one dienophile under the per-structure settings."""
+    return settings_hash(structure_settings(config) | {"dienophile": smiles})
+
+
+def strain_dienophile(config: dict) -> str:
+    return ETHYLENE if config["strain"]["dienophile"] == "ethylene" else config["dienophile"]
+
+
+def strain_hash(config: dict) -> str:
+    """Names strain result files: settings, strain dienophile and strain options."""
+    return settings_hash(structure_settings(config) | {"strain": config["strain"],
+                                                       "strain_dienophile": strain_dienophile(config)})

@@ -68,3 +68,17 @@ def test_unsupported_element_refused():
     from dienes.backends import BackendError
     with pytest.raises(BackendError, match="Z=\\[26\\]"):
         Molecule([26, 6])
+
+
+def test_backends_agree_on_where_orbitals_live():
+    # the AO order within a p shell differs between the two codes; atom weights must not
+    from dienes.backends import atom_orbital_weights
+    m = Chem.AddHs(Chem.MolFromSmiles("C=CC=O"))
+    AllChem.EmbedMolecule(m, randomSeed=1)
+    numbers = [a.GetAtomicNum() for a in m.GetAtoms()]
+    pos = m.GetConformer().GetPositions()
+    sps = [Molecule(numbers, Settings(b)).singlepoint(pos) for b in BACKENDS]
+    for j in (sps[0].homo_index, sps[0].homo_index + 1):
+        ref = atom_orbital_weights(sps[0], numbers, j)
+        for sp in sps[1:]:
+            np.testing.assert_allclose(atom_orbital_weights(sp, numbers, j), ref, atol=1e-4)

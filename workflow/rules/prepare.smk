@@ -2,6 +2,8 @@ checkpoint prepare:
     input:
         library=config["library"],
         reference=config["reference"],
+    params:
+        config_hash=CONFIG_HASH,
     output:
         manifest="results/manifest.json",
     conda:

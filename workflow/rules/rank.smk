@@ -2,7 +2,10 @@ rule rank:
     input:
         manifest="results/manifest.json",
         structures=get_rank_input,
-        dienophile=f"results/dienophile_{STRUCTURE_HASH}.json",
+        strain=get_rank_strain_input,
+        dienophile=f"results/dienophile_{RUN_DIENOPHILE}.json",
+    params:
+        config_hash=CONFIG_HASH,
     output:
         ranking="results/ranking.csv",
         sites="results/sites.csv",

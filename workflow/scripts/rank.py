@@ -4,8 +4,8 @@ from _log import setup
 from dienes.run import rank
 
 log = setup(snakemake.log[0])
-lines = rank(dict(snakemake.config), snakemake.input.manifest,
-             Path(snakemake.output.ranking).parent / "structures",
-             snakemake.input.dienophile, Path(snakemake.output.ranking).parent)
+out = Path(snakemake.output.ranking).parent
+lines = rank(dict(snakemake.config), snakemake.input.manifest, out / "structures",
+             snakemake.input.dienophile, out, strain_dir=out / "strain")
 for line in lines:
     log.info("%s", line)

@@ -27,6 +27,9 @@ RDLogger.DisableLog("rdApp.*")
 
 MAX_DIENE_STEREO_ISOMERS = 8
 NOATOM = 4294967295
+# lone metal ions that are counter-ions of a salt, not part of the diene
+COUNTER_ION_METALS = frozenset({3, 11, 12, 19, 20, 37, 38, 55, 56})
+NON_METALS = frozenset({1, 2, 5, 6, 7, 8, 9, 10, 14, 15, 16, 17, 18, 33, 34, 35, 36, 52, 53, 54, 85, 86})
 
 
 class LibraryError(ValueError):
@@ -216,19 +219,49 @@ def enumerate_diene_stereo(mol: Chem.Mol) -> tuple[list[Chem.Mol], list[str]]:
     return isomers, notes
 
 
+def _metal_problem(mol: Chem.Mol) -> str:
+    """A reason when the structure holds a metal other than a lone counter-ion."""
+    for atom in mol.GetAtoms():
+        z = atom.GetAtomicNum()
+        if z in NON_METALS:
+            continue
+        if z in COUNTER_ION_METALS and atom.GetDegree() == 0:
+            continue
+        return f"contains {atom.GetSymbol()}: metal complexes, organometallics and metalloid compounds are not treated"
+    return ""
+
+
 def prepare_record(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Record:
-    """Parse, standardise and check one row; find its isomers and diene sites."""
+    """Parse, standardise and check one row; find its isomers and diene sites.
+    Never raises: anything unexpected becomes the status 'unreadable_structure'."""
+    try:
+        return _prepare(row, rid, smiles, extra, limits)
+    except Exception as exc:  # noqa: BLE001 - one bad row must not stop the others
+        rec = Record(row=row, id=rid, smiles=smiles, extra=dict(extra))
+        return rec.fail("unreadable_structure", f"RDKit could not process this structure "
+                                                f"({type(exc).__name__}: {str(exc)[:200]})")
+
+
+def _prepare(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Record:
     rec = Record(row=row, id=rid, smiles=smiles, extra=dict(extra))
     if "_sdf_error" in rec.extra:
         return rec.fail("invalid_structure", rec.extra.pop("_sdf_error"))
-    if not smiles:
+    if not smiles.strip():
         return rec.fail("empty_smiles", "the smiles cell is empty")
-    mol = Chem.MolFromSmiles(smiles)
+    if any(c.isspace() for c in smiles.strip()):
+        return rec.fail("invalid_smiles", "the smiles cell holds more than one word")
+    mol = Chem.MolFromSmiles(smiles.strip())
     if mol is None:
         return rec.fail("invalid_smiles", "RDKit cannot parse this SMILES")
     if not rid:
         rec.notes.append("id cell is empty")
+    metal = _metal_problem(mol)
+    if metal:
+        return rec.fail("metal_complex", metal)
     mol, notes = standardise(mol)
+    if mol is None:
+        return rec.fail("unreadable_structure", "the structure could not be standardised "
+                                                "(fragment or charge clean-up failed)")
     rec.notes += notes
     rec.std_smiles = Chem.MolToSmiles(mol)
     bad = sorted({a.GetSymbol() for a in mol.GetAtoms()

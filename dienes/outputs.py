@@ -28,8 +28,8 @@ def write_table(df: pd.DataFrame, path) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     safe = df.copy()
     for col in safe.columns:
-        if safe[col].dtype == object:
-            safe[col] = safe[col].map(neutralise_cell)
+        if not (pd.api.types.is_numeric_dtype(safe[col]) or pd.api.types.is_bool_dtype(safe[col])):
+            safe[col] = safe[col].astype(object).map(neutralise_cell)
     safe.columns = [neutralise_cell(str(c)) for c in safe.columns]
     tmp = path.with_name(f".{path.name}.tmp")
     safe.to_csv(tmp, index=False, quoting=csv.QUOTE_MINIMAL, float_format="%.6g")

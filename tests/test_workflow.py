@@ -33,6 +33,13 @@ def _setup(tmp_path: Path, library_rows):
     (tmp_path / "config" / "config.yaml").write_text(yaml.safe_dump(cfg))
 
 
+def _setup_library(tmp_path, rows):
+    with open(tmp_path / "lib.csv", "w", newline="") as fh:
+        w = csv.writer(fh)
+        w.writerow(["id", "smiles", "note"])
+        w.writerows(rows)
+
+
 def _snakemake(tmp_path, *extra):
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
            "--directory", str(tmp_path), "--cores", "2", *extra]

@@ -2,9 +2,16 @@
 import json
 from pathlib import Path
 
+from dienes import runlock
 from dienes import settings as dienes_settings
 
 config.update(dienes_settings.validate(config))
+if workflow.is_main_process:
+    runlock.claim()
+    # before Snakemake looks at the files: an unreadable result is moved aside and recomputed
+    if runlock.quarantine_invalid(sorted(Path("results").glob("structures/*.json"))
+                                  + sorted(Path("results").glob("strain/*.json"))):
+        Path("results/ranking.csv").unlink(missing_ok=True)  # so the ranking is redone with it
 
 # dienophile result files, by hash: the run's dienophile and the model-TS partner
 DIENOPHILES = {

@@ -1,0 +1,130 @@
+"""Libraries from vendors, colleagues and old spreadsheets: every row gets a status."""
+import csv
+import os
+from pathlib import Path
+
+import pytest
+from hypothesis import HealthCheck, given, settings, strategies as st
+from rdkit import Chem
+
+from dienes.library import LibraryError, Limits, prepare_record, read_library
+from dienes.sites import find_sites
+
+from .conftest import REPO
+from .test_workflow import _ranking, _setup, _snakemake
+
+DATA = Path(__file__).parent / "data"
+STATUSES = {"ok", "invalid_smiles", "empty_smiles", "invalid_structure", "no_diene",
+            "unsupported_element", "metal_complex", "radical", "charged", "too_large",
+            "too_flexible", "unreadable_structure"}
+
+
+def corpus():
+    with open(DATA / "bad_inputs.csv", newline="", encoding="utf-8") as fh:
+        rows = list(csv.reader(fh))[1:]
+    return [(r + ["", "", "", ""])[:4] for r in rows]
+
+
+def test_corpus_is_broad():
+    assert len({r[2] for r in corpus()}) >= 25
+
+
+def test_every_row_gets_its_status_at_reading():
+    records = read_library(DATA / "bad_inputs.csv")
+    rows = corpus()
+    assert len(records) == len(rows)
+    for rec, (rid, smiles, trouble, expected) in zip(records, rows):
+        # ring locking is decided in 3D: at reading, such a row is still to be computed
+        want = "ok" if expected in ("locked_s_trans", "") else expected
+        if trouble == "" and rid == "BAD-35":
+            want = "empty_smiles"      # a short row: the smiles cell is missing altogether
+        assert rec.status == want, (rid, trouble, rec.message)
+        assert rec.id == rid
+        if rec.status != "ok":
+            assert rec.message, (rid, trouble)
+
+
+@pytest.mark.parametrize("name,pattern", [
+    ("bad_encoding.csv", "bad_encoding.csv: not UTF-8 text"),
+    ("no_smiles_column.csv", "no_smiles_column.csv: needs columns 'id' and 'smiles'"),
+])
+def test_unreadable_files_name_the_file_and_the_problem(name, pattern):
+    with pytest.raises(LibraryError, match=pattern):
+        read_library(DATA / name)
+
+
+SMILES_ALPHABET = "CcNnOoSsFlBrI()[]=#@+-/\\.%0123456789Hh "
+
+
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.text(alphabet=SMILES_ALPHABET, max_size=40))
+def test_random_smiles_like_strings_never_crash(text):
+    rec = prepare_record(1, "h", text, {}, Limits())
+    assert rec.status in STATUSES
+    assert rec.status == "ok" or rec.message
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.sampled_from(["C", "C=C", "C(C)", "c1ccoc1", "C1=CCC=C1", "O", "N", "Cl",
+                                 "C#C", "C(=O)", "/C=C/", "C=CC=C"]), min_size=1, max_size=8))
+def test_site_finder_on_random_valid_molecules(parts):
+    mol = Chem.MolFromSmiles("".join(parts))
+    if mol is None:
+        return
+    for site in find_sites(mol):
+        a1, a2, a3, a4 = site.atoms
+        assert len(set(site.atoms)) == 4
+        assert all(mol.GetAtomWithIdx(i).GetAtomicNum() == 6 for i in site.atoms)
+        assert mol.GetBondBetweenAtoms(a2, a3) is not None
+
+
+@pytest.mark.slow
+def test_corpus_through_the_workflow(tmp_path):
+    _setup(tmp_path, [])
+    lib = tmp_path / "lib.csv"
+    lib.write_bytes((DATA / "bad_inputs.csv").read_bytes())
+    before = set(os.listdir(tmp_path))
+    run = _snakemake(tmp_path)
+    assert run.returncode == 0, run.stderr[-3000:]
+    rows = _ranking(tmp_path)
+    expected = corpus()
+    assert len(rows) == len(expected)
+    for out, (rid, smiles, trouble, want) in zip(rows, expected):
+        shown = out["id"][1:] if out["id"].startswith("'") and rid[:1] in "=+-@" else out["id"]
+        assert shown == rid                                   # every row, in input order
+        if rid == "BAD-35":
+            want = "empty_smiles"
+        assert out["status"] == want, (rid, trouble, out["message"])
+        if want != "ok":
+            assert out["message"] and out["rank"] == ""
+        else:
+            assert out["rank"] != ""
+    formula = next(r for r in rows if "HYPERLINK" in r["id"])
+    assert formula["id"].startswith("'=")                     # a spreadsheet will not run it
+    # nothing written outside results/, logs/ and Snakemake's own folder, whatever an id says
+    assert set(os.listdir(tmp_path)) - before <= {"results", "logs", ".snakemake"}
+    assert not (tmp_path.parent / "tmp" / "escape").exists()
+    assert not Path("/tmp/escape").exists()
+
+
+def test_no_user_string_reaches_a_shell():
+    # the package and workflow run no shell commands at all (checked in the source)
+    offenders = []
+    for base in ("dienes", "workflow"):
+        for p in (Path(REPO) / base).rglob("*"):
+            if p.suffix in (".py", ".smk") and p.is_file():
+                text = p.read_text()
+                for bad in ("shell=True", "os.system(", "os.popen(", "shell:"):
+                    if bad in text:
+                        offenders.append(f"{p.name}: {bad}")
+    assert not offenders
+
+
+def test_formula_cells_are_neutralised(tmp_path):
+    import pandas as pd
+    from dienes.outputs import write_table
+    df = pd.DataFrame({"id": ["=1+1", "+SUM(A1)", "-2+3", "@x", "plain"], "log10_k_pred": [-1.5, 2.0, 0.1, 0, 1]})
+    write_table(df, tmp_path / "t.csv")
+    rows = list(csv.DictReader(open(tmp_path / "t.csv")))
+    assert [r["id"] for r in rows] == ["'=1+1", "'+SUM(A1)", "'-2+3", "'@x", "plain"]
+    assert rows[0]["log10_k_pred"] == "-1.5"          # numbers stay numbers

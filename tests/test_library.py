@@ -63,7 +63,8 @@ def test_given_stereo_is_kept():
 
 @pytest.mark.parametrize("smiles,status", [
     ("[Na+].C/C=C/C=C/C(=O)[O-]", "ok"),       # salt: largest organic fragment, neutralised
-    ("C=CC=C[Fe]", "unsupported_element"),
+    ("C=CC=C[Fe]", "metal_complex"),
+    ("C=CC=C[As](C)C", "unsupported_element"),
     ("C=CC=C[CH2]", "radical"),
     ("C=CC=CC[N+](C)(C)C", "charged"),
     ("C=CC=C" + "C" * 70, "too_large"),

@@ -15,4 +15,6 @@ rule all:
     input:
         "results/ranking.csv",
         "results/model.json",
+        "results/report.html",
+        "results/dienes.sdf",
     default_target: True

@@ -68,6 +68,54 @@ def summary_lines(ranking: pd.DataFrame, out_dir, top: int = 10) -> list[str]:
             lines.append(f"  {int(r['rank']):>3}  {str(r['id'])[:24]:<24} {r['log10_k_pred']:+6.2f} "
                          f"[{r['log10_k_low']:+.2f}, {r['log10_k_high']:+.2f}]  "
                          f"penalty {r['scis_penalty_kJmol']:5.1f} kJ/mol  HOMO {r['homo_eV']:.2f} eV")
-    lines.append(f"outputs: {Path(out_dir) / 'ranking.csv'}, {Path(out_dir) / 'sites.csv'}, "
-                 f"{Path(out_dir) / 'model.json'}")
+    out = Path(out_dir)
+    lines.append(f"outputs: {out / 'ranking.csv'} (table), {out / 'report.html'} (report), "
+                 f"{out / 'dienes.sdf'} (3D structures), {out / 'sites.csv'}, {out / 'model.json'}")
     return lines
+
+
+def _sdf_text(value) -> str:
+    return " ".join(str(value).split())  # one line: SDF fields and titles cannot hold newlines
+
+
+def write_sdf(table: pd.DataFrame, results: dict, path) -> int:
+    """3D structures of every ranked diene: its planar s-cis conformer (best site) and
+    its global minimum, with properties. Returns the number of records written."""
+    from rdkit import Chem
+    from rdkit.Geometry import Point3D
+    path = Path(path)
+    tmp = path.with_name(f".{path.name}.tmp")
+    writer = Chem.SDWriter(str(tmp))
+    n = 0
+    for _, r in table[table["rank"].notna()].sort_values("rank").iterrows():
+        res = results.get(r["structure_key"], {})
+        geo = res.get("geometry")
+        mol = Chem.MolFromSmiles(str(r["isomer_smiles"]))
+        if not geo or mol is None:
+            continue
+        mol = Chem.AddHs(mol)
+        if [a.GetAtomicNum() for a in mol.GetAtoms()] != geo["numbers"]:
+            continue
+        for label, coords in (("planar s-cis", geo["planar_s_cis_A"].get(r["best_site"])),
+                              ("global minimum", geo["minimum_A"])):
+            if coords is None:
+                continue
+            m = Chem.Mol(mol)
+            conf = Chem.Conformer(m.GetNumAtoms())
+            for i, (x, y, z) in enumerate(coords):
+                conf.SetAtomPosition(i, Point3D(x, y, z))
+            m.RemoveAllConformers()
+            m.AddConformer(conf, assignId=True)
+            m.SetProp("_Name", _sdf_text(f"{r['id']} {label}"))
+            props = {"id": r["id"], "row": int(r["row"]), "conformer": label, "status": r["status"],
+                     "rank": int(r["rank"]), "smiles": r["smiles"], "isomer_smiles": r["isomer_smiles"],
+                     "diene_site": r["best_site"], "scis_penalty_kJmol": r["scis_penalty_kJmol"],
+                     "homo_eV": r["homo_eV"], "lumo_eV": r["lumo_eV"], "log10_k_pred": r["log10_k_pred"],
+                     "distortion_kJmol": r["distortion_kJmol"], "seed": res.get("seed", "")}
+            for k, v in props.items():
+                m.SetProp(k, _sdf_text(v))
+            writer.write(m)
+            n += 1
+    writer.close()
+    tmp.replace(path)
+    return n

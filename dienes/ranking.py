@@ -92,6 +92,7 @@ def fit_reference(reference: list[dict], results: dict, dienophile: dict, config
                 row["reason"] = f"structure {res.get('status', 'missing')}: {res.get('message', '')}"
             else:
                 row.update(site_features(site, dienophile, _strain_of(strain, key, site["label"])))
+                row["site_kind"], row["aromatic"] = site["kind"], bool(site["aromatic"])
                 missing = [f for f in features if not np.isfinite(row[f])]
                 row["used"] = not missing
                 row["reason"] = f"no value for {missing}" if missing else ""
@@ -127,7 +128,9 @@ def fit_reference(reference: list[dict], results: dict, dienophile: dict, config
                "intercept": fit.intercept, "residual_sd_log10k": fit.resid_sd,
                "reference_temperature_K": T_ref,
                "physical_penalty_coefficient": -mdl.log10_units_per_kjmol(T_ref),
-               "interval": config["model"]["interval"], "note": note}
+               "interval": config["model"]["interval"], "note": note,
+               "training_classes": sorted({site_class(k, a) for k, a in
+                                           zip(used["site_kind"], used["aromatic"])})}
     if mdl.PENALTY in all_features:
         j = all_features.index(mdl.PENALTY)
         summary["ols_penalty_coefficient"] = ols.coef_per_unit[j]
@@ -135,7 +138,15 @@ def fit_reference(reference: list[dict], results: dict, dienophile: dict, config
     return fit, summary, table
 
 
-def predict_sites(site_rows: pd.DataFrame, fit, config: dict) -> pd.DataFrame:
+def site_class(kind: str, aromatic) -> str:
+    """The categorical part of the applicability domain: site kind and aromaticity."""
+    return f"{kind}{' aromatic' if bool(aromatic) else ''}"
+
+
+def predict_sites(site_rows: pd.DataFrame, fit, config: dict,
+                  training_classes: list[str] | None = None) -> pd.DataFrame:
+    """Predictions per site. A site is in the domain when its leverage is within
+    3p/n and its class (kind, aromatic or not) occurs in the reference set."""
     out = site_rows.copy()
     for name in fit.features:
         if name.startswith("dienophile["):
@@ -151,7 +162,18 @@ def predict_sites(site_rows: pd.DataFrame, fit, config: dict) -> pd.DataFrame:
         out.loc[ok, "log10_k_low"] = lo
         out.loc[ok, "log10_k_high"] = hi
         out.loc[ok, "leverage"] = lev
-        out.loc[ok, "in_domain"] = list(map(bool, dom))
+        out["domain_note"] = ""
+        classes = [site_class(k, a) for k, a in zip(out.loc[ok, "site_kind"], out.loc[ok, "aromatic"])]
+        notes = []
+        for d, c in zip(dom, classes):
+            why = []
+            if not d:
+                why.append("descriptors beyond the reference set's range")
+            if training_classes is not None and c not in training_classes:
+                why.append(f"no reference diene of this class ({c})")
+            notes.append("; ".join(why))
+        out.loc[ok, "in_domain"] = [not n for n in notes]
+        out.loc[ok, "domain_note"] = notes
     return out
 
 
@@ -225,7 +247,9 @@ def rank_table(records: list[dict], results: dict, sites: pd.DataFrame) -> pd.Da
                             "structure_key": best["key"], "n_gradients": res.get("n_gradients"),
                             "converged": res.get("converged")})
                 extra = res.get("message", "")
-                row["message"] = "; ".join(filter(None, [row["message"], extra]))
+                domain = best.get("domain_note", "")
+                domain = f"extrapolation: {domain}" if isinstance(domain, str) and domain else ""
+                row["message"] = "; ".join(filter(None, [row["message"], extra, domain]))
             else:
                 statuses = [results.get(i["key"], {}).get("status", "missing") for i in rec["isomers"]]
                 msgs = [results.get(i["key"], {}).get("message", "no result file") for i in rec["isomers"]]

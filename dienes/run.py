@@ -107,7 +107,7 @@ def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir, stra
                                                     st_res)
     sites = ranking.site_table(manifest["records"], results, dph, st_res)
     if len(sites):
-        sites = ranking.predict_sites(sites, fit, config)
+        sites = ranking.predict_sites(sites, fit, config, summary["training_classes"])
     table = ranking.rank_table(manifest["records"], results, sites)
     out_dir = Path(out_dir)
     outputs.write_table(table, out_dir / "ranking.csv")
@@ -161,7 +161,62 @@ def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
     fit, summary, _ = ranking.fit_reference(manifest["reference_records"], results, dph, config, st_res)
     sites = ranking.site_table(manifest["records"], results, dph, st_res)
     if len(sites):
-        sites = ranking.predict_sites(sites, fit, config)
+        sites = ranking.predict_sites(sites, fit, config, summary["training_classes"])
     table = ranking.rank_table(manifest["records"], results, sites)
     tmp.cleanup()
     return table, sites, summary
+
+
+def profiles_for_report(table, results: dict, config: dict, cache_dir, n: int = 3) -> list:
+    """Relaxed torsion profiles (15 deg steps) of the top and bottom ranked dienes
+    whose best site can rotate; cached per structure and site."""
+    import numpy as np
+    from .backends import Molecule
+    from .torsion import torsion_profile
+    st = cfg.structure_settings(config)
+    ranked = table[table["rank"].notna() & table["site_kind"].isin(["acyclic", "ring_other"])]
+    ranked = ranked.sort_values("rank")
+    picks = list(ranked.head(n).itertuples()) + [r for r in ranked.tail(n).itertuples()
+                                                 if r.rank not in set(ranked.head(n)["rank"])]
+    out = []
+    for r in picks:
+        res = results[r.structure_key]
+        path = Path(cache_dir) / f"{r.structure_key}__{r.best_site}.json"
+        if path.is_file():
+            prof = pipeline.read_json(path)
+        else:
+            atoms = [int(x) - 1 for x in str(r.best_site).split("-")]
+            geo = res["geometry"]
+            start = geo["planar_s_cis_A"].get(r.best_site, geo["minimum_A"])
+            a, e = torsion_profile(geo["numbers"], np.asarray(start),
+                                   Molecule(geo["numbers"], pipeline.backend_settings(st)), atoms,
+                                   step_deg=15.0)
+            prof = {"dihedral_deg": a.tolist(), "energy_kJmol": np.round(e, 3).tolist()}
+            pipeline.write_json(prof, path)
+        out.append((f"#{int(r.rank)} {r.id}", np.array(prof["dihedral_deg"]), np.array(prof["energy_kJmol"])))
+    return out
+
+
+def report(config: dict, manifest_path, out_dir) -> dict:
+    """report.html and dienes.sdf from a finished ranking."""
+    import pandas as pd
+    from . import report as rpt
+    config = cfg.validate(config)
+    out_dir = Path(out_dir)
+    manifest = pipeline.read_json(manifest_path)
+    results = load_results(manifest, out_dir / "structures")
+    table = pd.read_csv(out_dir / "ranking.csv", dtype={"id": str, "smiles": str, "message": str},
+                        keep_default_na=False, na_values=[""])
+    table["id"] = table["id"].fillna("").map(lambda s: s[1:] if s.startswith("'") else s)
+    table["smiles"] = table["smiles"].fillna("")
+    table["message"] = table["message"].fillna("")
+    sites = pd.read_csv(out_dir / "sites.csv") if (out_dir / "sites.csv").stat().st_size > 1 else pd.DataFrame()
+    reference = pd.read_csv(out_dir / "reference_fit.csv")
+    model = pipeline.read_json(out_dir / "model.json")
+    profiles = profiles_for_report(table, results, config, out_dir / "profiles")
+    versions = next((r.get("versions") for r in results.values() if r.get("versions")), {})
+    text = rpt.build(table, sites, model, reference, manifest["settings"] | {"seed": manifest["seed"]},
+                     versions, profiles, config["dienophile"])
+    rpt.write(out_dir / "report.html", text)
+    n_sdf = outputs.write_sdf(table, results, out_dir / "dienes.sdf")
+    return {"report": str(out_dir / "report.html"), "sdf": str(out_dir / "dienes.sdf"), "sdf_records": n_sdf}

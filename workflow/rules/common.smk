@@ -2,6 +2,7 @@
 import json
 from pathlib import Path
 
+import dienes
 from dienes import runlock
 from dienes import settings as dienes_settings
 
@@ -23,7 +24,7 @@ STRAIN_DIENOPHILE = dienes_settings.dienophile_hash(config, dienes_settings.stra
 STRAIN_HASH = dienes_settings.strain_hash(config)
 # any config change reruns the cheap whole-run steps (prepare, rank); per-structure
 # results are named by their own settings hash and are reused
-CONFIG_HASH = dienes_settings.settings_hash(config)
+CONFIG_HASH = dienes_settings.settings_hash(config | {"version": dienes.__version__})
 
 
 wildcard_constraints:

@@ -17,3 +17,21 @@ rule rank:
         "logs/rank.log",
     script:
         "../scripts/rank.py"
+
+
+rule report:
+    input:
+        manifest="results/manifest.json",
+        ranking="results/ranking.csv",
+        sites="results/sites.csv",
+        model="results/model.json",
+        reference="results/reference_fit.csv",
+    output:
+        report="results/report.html",
+        sdf="results/dienes.sdf",
+    conda:
+        "../envs/dienes.yaml"
+    log:
+        "logs/report.log",
+    script:
+        "../scripts/report.py"

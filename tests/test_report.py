@@ -1,0 +1,125 @@
+"""What the chemist looks at: report.html, dienes.sdf, the console command (slow)."""
+import csv
+import io
+import os
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from dienes import cli
+
+from .conftest import REPO
+from .test_workflow import _ranking, _setup, _snakemake
+
+pytestmark = pytest.mark.slow
+
+NASTY_ID = "<script>alert('x')</script>"
+LIBRARY = [("R-1", "C=CC=C", ""), ("R-2", "C1=CCC=C1", ""), (NASTY_ID, "C=CC(C)=C", "<b>bold</b>"),
+           ("R-4", "C1=CC=C", ""), ("R-5", "C=C1CCCC=C1", "")]
+
+
+@pytest.fixture(scope="module")
+def run_dir(tmp_path_factory):
+    d = tmp_path_factory.mktemp("report")
+    _setup(d, LIBRARY)
+    run = _snakemake(d)
+    assert run.returncode == 0, run.stderr[-3000:]
+    return d
+
+
+def test_report_is_self_contained_and_escaped(run_dir):
+    html = (run_dir / "results" / "report.html").read_text()
+    assert NASTY_ID not in html and "&lt;script&gt;alert(&#x27;x&#x27;)&lt;/script&gt;" in html
+    assert "<b>bold</b>" not in html
+    for needle in ('src="http', "src='http", 'href="http', "href='http", "url(http", "<script"):
+        assert needle not in html
+    assert "1,3-butadiene is a carcinogen" in html and "safety data sheet" in html
+    assert html.count("data-row=") == len(LIBRARY)     # a row per input record
+    for status in ("invalid_smiles", "locked_s_trans"):
+        assert status in html
+
+
+def test_sdf_read_by_rdkit_and_open_babel(run_dir):
+    from rdkit import Chem
+    sdf = run_dir / "results" / "dienes.sdf"
+    ranked = [r for r in _ranking(run_dir) if r["rank"]]
+    mols = [m for m in Chem.SDMolSupplier(str(sdf), removeHs=False)]
+    assert len(mols) == 2 * len(ranked) and all(m is not None for m in mols)
+    assert {m.GetProp("conformer") for m in mols} == {"planar s-cis", "global minimum"}
+    assert all(m.GetConformer().Is3D() for m in mols)
+    butadiene = [m for m in mols if m.GetProp("id") == "R-1"]
+    assert float(butadiene[0].GetProp("scis_penalty_kJmol")) == pytest.approx(
+        float(next(r for r in ranked if r["id"] == "R-1")["scis_penalty_kJmol"]), abs=1e-3)
+    # Open Babel in its own process: its bundled libraries do not share one with xtb
+    code = ("import json,sys; from openbabel import pybel; ms=list(pybel.readfile('sdf', sys.argv[1])); "
+            "print(json.dumps([[m.OBMol.NumAtoms(), m.data['id']] for m in ms]))")
+    out = subprocess.run([sys.executable, "-c", code, str(sdf)], capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0, out.stderr
+    import json
+    ob = json.loads(out.stdout)
+    assert [n for n, _ in ob] == [m.GetNumAtoms() for m in mols]
+    assert [i for _, i in ob] == [m.GetProp("id") for m in mols]
+
+
+def _chrome():
+    from selenium import webdriver
+    from selenium.webdriver.chrome.service import Service
+    opts = webdriver.ChromeOptions()
+    for flag in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                 "--window-size=1400,1800"):
+        opts.add_argument(flag)
+    opts.binary_location = shutil.which("chromium") or "/usr/bin/chromium"
+    opts.set_capability("goog:loggingPrefs", {"browser": "ALL"})
+    return webdriver.Chrome(service=Service(shutil.which("chromedriver") or "/usr/bin/chromedriver"),
+                            options=opts)
+
+
+def test_report_in_a_real_browser(run_dir):
+    if not (shutil.which("chromium") and shutil.which("chromedriver")):
+        if os.environ.get("CI"):
+            pytest.fail("chromium and chromedriver must be installed in CI (.ci/run installs them)")
+        pytest.skip("chromium/chromedriver not installed here (Debian packages chromium chromium-driver)")
+    from PIL import Image, ImageStat
+    driver = _chrome()
+    try:
+        driver.get((run_dir / "results" / "report.html").as_uri())
+        rows = driver.execute_script("return document.querySelectorAll('#ranking tr[data-row]').length")
+        assert rows == len(LIBRARY)
+        sizes = driver.execute_script(
+            "return Array.from(document.querySelectorAll('svg')).map(s => s.getBoundingClientRect().width)")
+        assert len(sizes) >= 4 + 3 and min(sizes) > 10       # depictions and plots are drawn
+        errors = [e for e in driver.get_log("browser") if e["level"] == "SEVERE"]
+        assert errors == []
+        png = driver.get_screenshot_as_png()
+    finally:
+        driver.quit()
+    stat = ImageStat.Stat(Image.open(io.BytesIO(png)).convert("L"))
+    assert stat.stddev[0] > 10                               # not a blank page
+
+
+def test_console_rank_prints_the_top(run_dir, tmp_path):
+    work = tmp_path / "w"
+    work.mkdir()
+    shutil.copytree(run_dir / "config", work / "config")
+    with open(tmp_path / "mine.csv", "w", newline="") as fh:
+        w = csv.writer(fh)
+        w.writerow(["id", "smiles"])
+        w.writerows([("M-1", "C=CC=C"), ("M-2", "C1=CCC=C1")])
+    out = subprocess.run([sys.executable, "-m", "dienes.cli", "rank", str(tmp_path / "mine.csv"),
+                          "--workdir", str(work), "--cores", "2", "--quiet"],
+                         capture_output=True, text=True, timeout=900)
+    assert out.returncode == 0, out.stderr[-3000:]
+    assert "2 input rows: 2 ranked ok" in out.stdout
+    assert "M-2" in out.stdout.split("top")[1]
+    assert "report:" in out.stdout
+
+
+def test_console_look(capsys):
+    assert cli.main(["look", "C/C=C\\C=C"]) == 0
+    text = capsys.readouterr().out
+    assert "s-cis penalty" in text and "HOMO" in text and "relaxed torsion profile" in text
+    assert text.count("kJ/mol |") == 13                      # 0..180 deg in 15 deg steps

@@ -1,0 +1,8 @@
+from pathlib import Path
+
+from _log import setup
+from dienes.run import report
+
+log = setup(snakemake.log[0])
+out = report(dict(snakemake.config), snakemake.input.manifest, Path(snakemake.output.report).parent)
+log.info("report: %s; 3D structures: %s (%d records)", out["report"], out["sdf"], out["sdf_records"])

@@ -123,6 +123,8 @@ def model_ts(diene_numbers, diene_A, site_atoms, diene_energy_kJmol: float,
 def strain_for_structure(structure: dict, dienophile: dict, settings: BackendSettings,
                          forming_bond_A: float = 2.25) -> dict:
     """Model-TS strain of every computed site of a per-structure result."""
+    import time
+    t0 = time.perf_counter()
     out = {"key": structure.get("key", ""), "dienophile": dienophile["smiles"],
            "forming_bond_A": forming_bond_A, "sites": {}, "status": "ok", "message": ""}
     if structure.get("status") != "ok":
@@ -143,4 +145,5 @@ def strain_for_structure(structure: dict, dienophile: dict, settings: BackendSet
             "model_barrier_kJmol": round(r.model_barrier_kJmol, 4),
             "approach": r.approach, "converged": r.converged, "n_gradients": r.n_gradients,
             "positions_A": np.round(r.positions_A, 5).tolist()}
+    out["wall_time_s"] = round(time.perf_counter() - t0, 3)
     return out

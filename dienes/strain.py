@@ -15,6 +15,7 @@ kept. Energies (kJ/mol):
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -22,6 +23,8 @@ import numpy as np
 from .backends import Molecule, Settings as BackendSettings
 from .optimize import backend_energy_forces, optimize
 from .units import EV_KJMOL
+
+SCREEN_FMAX_EV_A = 0.1  # force threshold for comparing approaches before the lowest is refined
 
 
 @dataclass
@@ -95,6 +98,7 @@ def model_ts(diene_numbers, diene_A, site_atoms, diene_energy_kJmol: float,
         faces = (True,)  # substituents spread evenly (ethylene): endo and exo are one approach
     approaches = [(endo, swap) for endo in faces for swap in (False, True)
                   if not (swap and dph_symmetric)]
+    # every approach is relaxed loosely; only the lowest is refined to fmax_eV_A
     best = None
     for endo, swap in approaches:
         placed = place_dienophile(np.asarray(diene_A), site_atoms, np.asarray(dph_A), dph_bond,
@@ -102,11 +106,14 @@ def model_ts(diene_numbers, diene_A, site_atoms, diene_energy_kJmol: float,
         a, b = (dph_bond[1], dph_bond[0]) if swap else (dph_bond[0], dph_bond[1])
         start = np.vstack([diene_A, placed])
         bonds = [(forming_bond_A, (c1, nd + a)), (forming_bond_A, (c4, nd + b))]
-        r = optimize(numbers, start, ef, bonds_A=bonds, fmax_eV_A=fmax_eV_A, max_steps=max_steps)
+        loose = max(fmax_eV_A, SCREEN_FMAX_EV_A) if len(approaches) > 1 else fmax_eV_A
+        r = optimize(numbers, start, ef, bonds_A=bonds, fmax_eV_A=loose, max_steps=max_steps)
         if best is None or r.energy_eV < best[0].energy_eV:
             face = "face to face" if len(faces) == 1 else ("endo" if endo else "exo")
-            best = (r, f"{face}{', reversed' if swap else ''}")
-    r, approach = best
+            best = (r, f"{face}{', reversed' if swap else ''}", bonds)
+    r, approach, bonds = best
+    if len(approaches) > 1:
+        r = optimize(numbers, r.positions_A, ef, bonds_A=bonds, fmax_eV_A=fmax_eV_A, max_steps=max_steps)
     e_complex = r.energy_eV * EV_KJMOL
     e_diene_frozen = diene_mol.singlepoint(r.positions_A[:nd]).energy_kJmol
     e_dph_frozen = dph_mol.singlepoint(r.positions_A[nd:]).energy_kJmol
@@ -123,7 +130,6 @@ def model_ts(diene_numbers, diene_A, site_atoms, diene_energy_kJmol: float,
 def strain_for_structure(structure: dict, dienophile: dict, settings: BackendSettings,
                          forming_bond_A: float = 2.25) -> dict:
     """Model-TS strain of every computed site of a per-structure result."""
-    import time
     t0 = time.perf_counter()
     out = {"key": structure.get("key", ""), "dienophile": dienophile["smiles"],
            "forming_bond_A": forming_bond_A, "sites": {}, "status": "ok", "message": ""}

@@ -52,3 +52,18 @@ def test_di_tert_butyl_at_the_bottom_and_locked_s_trans_not_ranked(panel):
     assert max(int(r["rank"]) for r in ranked.values()) == int(ranked["dtb"]["rank"])
     assert rows["mch"]["status"] == "locked_s_trans"
     assert rows["mch"]["rank"] is None or str(rows["mch"]["rank"]) in ("<NA>", "nan")
+
+
+def test_model_on_the_reference_set(panel):
+    # observed with the shipped reference set (entered from memory): LOO Spearman 0.61;
+    # the floor guards against a regression of the descriptors
+    cfg, cache = panel
+    _, _, summary = rank_in_process(cfg, cache_dir=cache)
+    assert summary["n_reference"] == 16
+    assert summary["cv_spearman"] >= 0.5
+    assert summary["cv_rmse_log10k"] <= 1.0
+    # the free penalty coefficient agrees with the physical -1/(RT ln 10) within 3 standard errors
+    phys = summary["physical_penalty_coefficient"]
+    assert abs(summary["ols_penalty_coefficient"] - phys) <= 3 * summary["ols_penalty_coefficient_se"]
+    assert summary["coefficients"]["homo_eV"] > 0          # electron-rich dienes react faster
+    assert summary["coefficients"]["distortion_kJmol"] < 0

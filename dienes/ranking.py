@@ -13,7 +13,6 @@ from rdkit import Chem
 from . import model as mdl
 from .orbitals import regio_hint
 
-NOT_RANKED_OK = ""  # rank cell of a row that is not ranked
 
 
 STRAIN_COLUMNS = ("distortion_kJmol", "dienophile_distortion_kJmol", "interaction_kJmol",

@@ -20,7 +20,7 @@ from rdkit import Chem
 from rdkit.Chem import rdMolTransforms
 
 from . import conformers as cf
-from .backends import Molecule, SinglePoint
+from .backends import Molecule
 from .optimize import (EnergyForces, OptResult, backend_energy_forces, constrained_dihedral_path,
                        dihedral_deg, optimize)
 from .sites import ACYCLIC, RING_OTHER, RING_S_CIS, Site

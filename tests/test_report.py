@@ -5,13 +5,11 @@ import os
 import shutil
 import subprocess
 import sys
-from pathlib import Path
 
 import pytest
 
 from dienes import cli
 
-from .conftest import REPO
 from .test_workflow import _ranking, _setup, _snakemake
 
 pytestmark = pytest.mark.slow

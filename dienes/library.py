@@ -297,8 +297,11 @@ def _prepare(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Re
 def read_library(path, limits: Limits | None = None) -> list[Record]:
     """Every row of the library as a Record, in input order (row numbers 1-based)."""
     limits = limits or Limits()
+    rows = read_rows(path)
+    if not rows:
+        raise LibraryError(f"{path}: the file holds no rows to rank")
     records = [prepare_record(i, rid, smi, extra, limits)
-               for i, (rid, smi, extra) in enumerate(read_rows(path), start=1)]
+               for i, (rid, smi, extra) in enumerate(rows, start=1)]
     first_id: dict[str, int] = {}
     first_key: dict[str, int] = {}
     for rec in records:

@@ -82,3 +82,9 @@ def test_duplicates_are_noted_not_dropped(tmp_path):
     assert len(recs) == 3
     assert "id also used on row 1" in recs[1].message
     assert "same structure as row 1" in recs[2].message
+
+
+def test_header_only_library_is_one_clear_error(tmp_path):
+    p = _write(tmp_path, "lib.csv", "id,smiles\n")
+    with pytest.raises(LibraryError, match="lib.csv: the file holds no rows"):
+        read_library(p)

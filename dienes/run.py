@@ -96,6 +96,18 @@ def load_results(manifest: dict, result_dir) -> dict:
     return out
 
 
+def _rank_tables(manifest: dict, results: dict, dph: dict, config: dict, st_res):
+    """Fit on the reference records, predict every site, pick each row's best:
+    (ranking table, sites table, model summary, reference table)."""
+    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], results, dph, config,
+                                                    st_res)
+    sites = ranking.site_table(manifest["records"], results, dph, st_res)
+    if len(sites):
+        sites = ranking.predict_sites(sites, fit, config, summary["training_classes"])
+    table = ranking.rank_table(manifest["records"], results, sites)
+    return table, sites, summary, ref_table
+
+
 def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir, strain_dir=None) -> list[str]:
     config = cfg.validate(config)
     manifest = pipeline.read_json(manifest_path)
@@ -103,12 +115,7 @@ def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir, stra
     dph = pipeline.read_json(dienophile_path)
     st_res = (load_strain(manifest, strain_dir, cfg.strain_hash(config))
               if config["strain"]["enabled"] and strain_dir else None)
-    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], results, dph, config,
-                                                    st_res)
-    sites = ranking.site_table(manifest["records"], results, dph, st_res)
-    if len(sites):
-        sites = ranking.predict_sites(sites, fit, config, summary["training_classes"])
-    table = ranking.rank_table(manifest["records"], results, sites)
+    table, sites, summary, ref_table = _rank_tables(manifest, results, dph, config, st_res)
     out_dir = Path(out_dir)
     outputs.write_table(table, out_dir / "ranking.csv")
     outputs.write_table(sites, out_dir / "sites.csv")
@@ -158,11 +165,7 @@ def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
         st_res = load_strain(manifest, cache / "strain", shash)
     results = load_results(manifest, cache / "structures")
     dph = pipeline.read_json(dph_paths[config["dienophile"]])
-    fit, summary, _ = ranking.fit_reference(manifest["reference_records"], results, dph, config, st_res)
-    sites = ranking.site_table(manifest["records"], results, dph, st_res)
-    if len(sites):
-        sites = ranking.predict_sites(sites, fit, config, summary["training_classes"])
-    table = ranking.rank_table(manifest["records"], results, sites)
+    table, sites, summary, _ = _rank_tables(manifest, results, dph, config, st_res)
     tmp.cleanup()
     return table, sites, summary
 

@@ -12,10 +12,12 @@ from __future__ import annotations
 import csv
 import io
 import itertools
+import logging
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from rdkit import Chem, RDLogger
+from rdkit import Chem, rdBase
 from rdkit.Chem import rdMolDescriptors
 from rdkit.Chem.EnumerateStereoisomers import EnumerateStereoisomers, StereoEnumerationOptions
 from rdkit.Chem.MolStandardize import rdMolStandardize
@@ -23,7 +25,26 @@ from rdkit.Chem.MolStandardize import rdMolStandardize
 from .backends import SUPPORTED_ELEMENTS
 from .sites import find_sites
 
-RDLogger.DisableLog("rdApp.*")
+# RDKit's messages go to one quiet Python logger so that a row's problem can be quoted
+rdBase.LogToPythonLogger()
+_RDKIT_LOG = logging.getLogger("rdkit")
+_RDKIT_LOG.propagate = False
+
+
+class _Collect(logging.Handler):
+    def __init__(self):
+        super().__init__()
+        self.lines: list[str] = []
+
+    def emit(self, record):
+        self.lines.append(record.getMessage())
+
+
+_COLLECTOR = _Collect()
+_RDKIT_LOG.handlers = [_COLLECTOR]
+
+EXTENSIONS = {".csv": "csv", ".tsv": "csv", ".smi": "smi", ".smiles": "smi", ".sdf": "sdf", ".sd": "sdf"}
+MAX_DIENOPHILE_HEAVY_ATOMS = 30
 
 MAX_DIENE_STEREO_ISOMERS = 8
 NOATOM = 4294967295
@@ -134,17 +155,63 @@ def _read_sdf(path: Path) -> list[tuple[str, str, dict]]:
     return rows
 
 
-def read_rows(path) -> list[tuple[str, str, dict]]:
-    """(id, smiles, extra columns) per row of a library file."""
+def read_rows(path, what: str = "library") -> list[tuple[str, str, dict]]:
+    """(id, smiles, extra columns) per row of a library file, chosen by its extension."""
     path = Path(path)
     if not path.is_file():
-        raise LibraryError(f"{path}: no such file")
-    suffix = path.suffix.lower()
-    if suffix in (".smi", ".smiles", ".txt"):
-        return _read_smi(path)
-    if suffix in (".sdf", ".sd", ".mol"):
-        return _read_sdf(path)
-    return _read_csv(path)
+        raise LibraryError(f"{what} {path}: no such file")
+    kind = EXTENSIONS.get(path.suffix.lower())
+    if kind is None:
+        raise LibraryError(f"{what} {path}: unknown file type {path.suffix or '(no extension)'!r}; "
+                           "name it .csv (columns id, smiles), .smi (SMILES then id) or .sdf")
+    try:
+        return {"csv": _read_csv, "smi": _read_smi, "sdf": _read_sdf}[kind](path)
+    except LibraryError as exc:
+        raise LibraryError(f"{what} {exc}") from None
+
+
+def parse_smiles(smiles: str) -> tuple[Chem.Mol | None, str]:
+    """RDKit molecule and '' , or None and RDKit's own reason."""
+    _COLLECTOR.lines.clear()
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is not None:
+        return mol, ""
+    lines = [re.sub(r"^\[[0-9:]+\]\s*", "", x).strip() for x in _COLLECTOR.lines]
+    lines = [x for x in lines if x and not set(x) <= set("~^ ")]
+    reason = lines[0] if lines else "RDKit cannot parse this SMILES"
+    return None, f"RDKit: {reason}"
+
+
+def check_dienophile(smiles: str) -> str:
+    """'' when `smiles` can serve as the dienophile, otherwise the problem in words:
+    it must parse, be one closed-shell neutral molecule of supported elements, at most
+    MAX_DIENOPHILE_HEAVY_ATOMS heavy atoms, with a C=C or C#C bond."""
+    if not smiles or any(c.isspace() for c in smiles.strip()):
+        return "give one SMILES without spaces"
+    mol, why = parse_smiles(smiles.strip())
+    if mol is None:
+        return f"not a valid SMILES ({why})"
+    if len(Chem.GetMolFrags(mol)) > 1:
+        return "more than one molecule"
+    bad = sorted({a.GetSymbol() for a in mol.GetAtoms() if a.GetAtomicNum() not in SUPPORTED_ELEMENTS})
+    if bad:
+        return f"elements outside the GFN2-xTB setup: {', '.join(bad)}"
+    if any(a.GetNumRadicalElectrons() for a in mol.GetAtoms()):
+        return "open-shell (radical): only closed-shell dienophiles are treated"
+    if Chem.GetFormalCharge(mol):
+        return f"net charge {Chem.GetFormalCharge(mol):+d}: only neutral dienophiles are treated"
+    if mol.GetNumHeavyAtoms() > MAX_DIENOPHILE_HEAVY_ATOMS:
+        return f"{mol.GetNumHeavyAtoms()} heavy atoms; dienophiles of up to {MAX_DIENOPHILE_HEAVY_ATOMS} are treated"
+    kek = Chem.Mol(mol)
+    Chem.Kekulize(kek, clearAromaticFlags=True)
+    has_cc = any(b.GetBondType() in (Chem.BondType.DOUBLE, Chem.BondType.TRIPLE)
+                 and b.GetBeginAtom().GetAtomicNum() == 6 and b.GetEndAtom().GetAtomicNum() == 6
+                 and not mol.GetAtomWithIdx(b.GetBeginAtomIdx()).GetIsAromatic()
+                 for b in kek.GetBonds())
+    if not has_cc:
+        return ("no C=C or C#C bond outside an aromatic ring: hetero-dienophiles (C=O, N=N, N=O) "
+                "are not treated")
+    return ""
 
 
 # ---------------------------------------------------------- standardising
@@ -233,26 +300,26 @@ def _metal_problem(mol: Chem.Mol) -> str:
 
 def prepare_record(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Record:
     """Parse, standardise and check one row; find its isomers and diene sites.
-    Never raises: anything unexpected becomes the status 'unreadable_structure'."""
+    Never raises: anything unexpected becomes the status 'processing_error'."""
     try:
         return _prepare(row, rid, smiles, extra, limits)
     except Exception as exc:  # noqa: BLE001 - one bad row must not stop the others
         rec = Record(row=row, id=rid, smiles=smiles, extra=dict(extra))
-        return rec.fail("unreadable_structure", f"RDKit could not process this structure "
+        return rec.fail("processing_error", f"RDKit could not process this structure "
                                                 f"({type(exc).__name__}: {str(exc)[:200]})")
 
 
 def _prepare(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Record:
     rec = Record(row=row, id=rid, smiles=smiles, extra=dict(extra))
     if "_sdf_error" in rec.extra:
-        return rec.fail("invalid_structure", rec.extra.pop("_sdf_error"))
+        return rec.fail("unreadable_sdf_record", rec.extra.pop("_sdf_error"))
     if not smiles.strip():
         return rec.fail("empty_smiles", "the smiles cell is empty")
     if any(c.isspace() for c in smiles.strip()):
         return rec.fail("invalid_smiles", "the smiles cell holds more than one word")
-    mol = Chem.MolFromSmiles(smiles.strip())
+    mol, why = parse_smiles(smiles.strip())
     if mol is None:
-        return rec.fail("invalid_smiles", "RDKit cannot parse this SMILES")
+        return rec.fail("invalid_smiles", why)
     if not rid:
         rec.notes.append("id cell is empty")
     metal = _metal_problem(mol)
@@ -260,7 +327,7 @@ def _prepare(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Re
         return rec.fail("metal_complex", metal)
     mol, notes = standardise(mol)
     if mol is None:
-        return rec.fail("unreadable_structure", "the structure could not be standardised "
+        return rec.fail("processing_error", "the structure could not be standardised "
                                                 "(fragment or charge clean-up failed)")
     rec.notes += notes
     rec.std_smiles = Chem.MolToSmiles(mol)
@@ -294,12 +361,13 @@ def _prepare(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Re
     return rec
 
 
-def read_library(path, limits: Limits | None = None) -> list[Record]:
-    """Every row of the library as a Record, in input order (row numbers 1-based)."""
+def read_library(path, limits: Limits | None = None, what: str = "library") -> list[Record]:
+    """Every row of the library as a Record, in input order (row numbers 1-based).
+    `what` names the file in error messages ('library' or 'reference')."""
     limits = limits or Limits()
-    rows = read_rows(path)
+    rows = read_rows(path, what)
     if not rows:
-        raise LibraryError(f"{path}: the file holds no rows to rank")
+        raise LibraryError(f"{what} {path}: the file holds no rows")
     records = [prepare_record(i, rid, smi, extra, limits)
                for i, (rid, smi, extra) in enumerate(rows, start=1)]
     first_id: dict[str, int] = {}

@@ -1,16 +1,24 @@
 """Reactivity model: log10 k against diene descriptors, fitted on reference kinetics.
 
-Features are standardised; three variants are compared by leave-one-out
-cross-validation and the one with the lowest LOO RMSE is used:
+The main descriptor is the computed barrier (kJ/mol); the reference kinetics set
+its slope and offset. Features are standardised; three variants are compared by
+leave-one-out cross-validation and the one with the lowest LOO RMSE is used:
 
 - ``ols``: ordinary least squares on all features;
 - ``ridge``: ridge regression (alpha 1 on standardised features);
-- ``physics``: the s-cis penalty coefficient fixed at the pre-equilibrium value
-  -1/(RT ln 10) per kJ/mol (-0.175 at 298 K), the other features fitted.
+- ``physics``: the slope of the first energy feature (barrier or s-cis penalty)
+  fixed at the transition-state-theory value -1/(RT ln 10) per kJ/mol
+  (-0.175 at 298 K), the other features fitted.
+
+Extra descriptors (``candidates``) join the base features one at a time, only
+when they lower the LOO RMSE by at least MIN_GAIN; the honest error of that
+choice is measured by repeating it inside every leave-one-out fold.
 
 Prediction intervals come from the least-squares formula with the fitted
-residual spread (t distribution); the applicability domain is the leverage
-h = x0' (X'X)^-1 x0 against the usual 3 p / n cut-off (common practice).
+residual spread (t distribution). The applicability domain looks at every
+descriptor of the model, fixed-slope ones included: the leverage
+h = x0' (X'X)^-1 x0 against the usual 3 p / n cut-off (common practice) and
+each descriptor's reference range widened by RANGE_MARGIN of its span.
 """
 
 from __future__ import annotations
@@ -19,19 +27,24 @@ from dataclasses import dataclass, field, asdict
 
 import numpy as np
 from scipy import stats
-from sklearn.linear_model import LinearRegression, Ridge
 
 from .units import log10_units_per_kjmol
 
 PENALTY = "scis_penalty_kJmol"
+# energy descriptors whose slope transition-state theory fixes at -1/(RT ln 10)
+PHYSICAL_SLOPE_FEATURES = ("barrier_kJmol", "barrier_refined_kJmol", "scis_penalty_kJmol",
+                           "scis_penalty_refined_kJmol")
 VARIANTS = ("ols", "ridge", "physics")
 RIDGE_ALPHA = 1.0
+MIN_GAIN = 0.05          # a candidate joins only if it lowers the LOO RMSE by 5 % or more
+RANGE_MARGIN = 0.10      # a descriptor may exceed the reference range by 10 % of its span
 
 
 @dataclass
 class Fit:
     """A fitted variant. coef_per_unit: coefficient per unit of each raw feature
-    (log10 k per kJ/mol, per eV, ...); coef_se: their standard errors."""
+    (log10 k per kJ/mol, per eV, ...); coef_se: their standard errors (None for a
+    fixed coefficient); fixed: index of the fixed-slope feature, or None."""
 
     variant: str
     features: list[str]
@@ -43,13 +56,24 @@ class Fit:
     resid_sd: float
     dof: int
     n: int
-    fixed_penalty_coef: float | None = None
+    fixed: int | None = None
     xtx_inv: list = field(default_factory=list)
+    x_train: list = field(default_factory=list)
+
+    @property
+    def fixed_feature(self) -> str | None:
+        return None if self.fixed is None else self.features[self.fixed]
 
     def as_dict(self) -> dict:
         d = asdict(self)
         d.pop("xtx_inv")
+        d.pop("x_train")
         return d
+
+
+def fixed_slope_index(features: list[str]) -> int | None:
+    """The feature whose slope the physics variant fixes: the first energy feature."""
+    return next((k for k, f in enumerate(features) if f in PHYSICAL_SLOPE_FEATURES), None)
 
 
 def _design(X: np.ndarray, mean, scale) -> np.ndarray:
@@ -59,6 +83,7 @@ def _design(X: np.ndarray, mean, scale) -> np.ndarray:
 def fit(X: np.ndarray, y: np.ndarray, features: list[str], variant: str,
         temperature_K: float) -> Fit:
     """Fit one variant on raw features X (n, p) and log10 k values y (n)."""
+    from sklearn.linear_model import LinearRegression, Ridge
     X = np.asarray(X, dtype=float)
     y = np.asarray(y, dtype=float)
     n, p = X.shape
@@ -66,19 +91,20 @@ def fit(X: np.ndarray, y: np.ndarray, features: list[str], variant: str,
     scale = X.std(axis=0)
     scale[scale == 0] = 1.0
     Z = _design(X, mean, scale)
-    fixed = None
+    fixed_k = None
     free = list(range(p))
     y_fit = y
+    fixed_value = None
     if variant == "physics":
-        if PENALTY not in features:
-            raise ValueError("the physics variant needs the s-cis penalty feature")
-        j = features.index(PENALTY)
-        fixed = -log10_units_per_kjmol(temperature_K)
-        y_fit = y - fixed * X[:, j]
-        free = [k for k in range(p) if k != j]
+        fixed_k = fixed_slope_index(features)
+        if fixed_k is None:
+            raise ValueError("the physics variant needs an energy feature (barrier or s-cis penalty)")
+        fixed_value = -log10_units_per_kjmol(temperature_K)
+        y_fit = y - fixed_value * X[:, fixed_k]
+        free = [k for k in range(p) if k != fixed_k]
     Zf = Z[:, free]
     beta_std = np.zeros(p)
-    if not free:                       # only the fixed penalty term: intercept alone
+    if not free:                       # only the fixed term: intercept alone
         b0 = float(np.mean(y_fit))
     else:
         reg = (Ridge(alpha=RIDGE_ALPHA) if variant == "ridge" else LinearRegression()).fit(Zf, y_fit)
@@ -86,38 +112,61 @@ def fit(X: np.ndarray, y: np.ndarray, features: list[str], variant: str,
         b0 = float(reg.intercept_)
     coef = beta_std / scale
     intercept = float(b0 - np.sum(beta_std * mean / scale))
-    if fixed is not None:
-        coef[features.index(PENALTY)] = fixed
+    if fixed_k is not None:
+        coef[fixed_k] = fixed_value
     resid = y - (X @ coef + intercept)
     dof = max(n - len(free) - 1, 1)
     resid_sd = float(np.sqrt(np.sum(resid ** 2) / dof))
     A = np.column_stack([np.ones(n), Zf])
     xtx_inv = np.linalg.pinv(A.T @ A)
     se_std = resid_sd * np.sqrt(np.diag(xtx_inv))[1:]
-    se = [None] * p
+    se: list[float | None] = [None] * p
     for k, s in zip(free, se_std):
         se[k] = float(s / scale[k])
-    if fixed is not None:
-        se[features.index(PENALTY)] = 0.0
     return Fit(variant, list(features), mean.tolist(), scale.tolist(), coef.tolist(), se,
-               intercept, resid_sd, dof, n, fixed, xtx_inv.tolist())
+               intercept, resid_sd, dof, n, fixed_k, xtx_inv.tolist(), X.tolist())
 
 
 def predict(model: Fit, X: np.ndarray, interval: float = 0.9):
-    """Predictions for raw features X (m, p): (log10_k, low, high, leverage, in_domain)."""
+    """Predictions for raw features X (m, p): (log10_k, low, high) with the
+    `interval` prediction interval from the free (fitted) features' leverage."""
     X = np.atleast_2d(np.asarray(X, dtype=float))
     pred = X @ np.asarray(model.coef_per_unit) + model.intercept
     Z = _design(X, np.asarray(model.mean), np.asarray(model.scale))
-    free = [k for k, f in enumerate(model.features)
-            if not (model.fixed_penalty_coef is not None and f == PENALTY)]
+    free = [k for k in range(len(model.features)) if k != model.fixed]
     A = np.column_stack([np.ones(len(X)), Z[:, free]])
-    inv = np.asarray(model.xtx_inv)
-    leverage = np.einsum("ij,jk,ik->i", A, inv, A)
+    leverage = np.einsum("ij,jk,ik->i", A, np.asarray(model.xtx_inv), A)
     t = stats.t.ppf(0.5 + interval / 2.0, model.dof)
     half = t * model.resid_sd * np.sqrt(1.0 + leverage)
-    p_eff = len(free) + 1
-    in_domain = leverage <= 3.0 * p_eff / model.n
-    return pred, pred - half, pred + half, leverage, in_domain
+    return pred, pred - half, pred + half
+
+
+def domain(model: Fit, X: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[list[str]]]:
+    """Applicability domain over every descriptor of the model (fixed-slope ones too).
+
+    Returns (leverage over all descriptors, in-domain flags, reasons per row): a row
+    is outside when its leverage exceeds 3 p / n (p = descriptors + 1) or any
+    descriptor leaves the reference range by more than RANGE_MARGIN of its span."""
+    X = np.atleast_2d(np.asarray(X, dtype=float))
+    T = np.asarray(model.x_train, dtype=float)
+    mean, scale = T.mean(axis=0), T.std(axis=0)
+    scale[scale == 0] = 1.0
+    At = np.column_stack([np.ones(len(T)), (T - mean) / scale])
+    inv = np.linalg.pinv(At.T @ At)
+    A = np.column_stack([np.ones(len(X)), (X - mean) / scale])
+    lev = np.einsum("ij,jk,ik->i", A, inv, A)
+    cut = 3.0 * At.shape[1] / len(T)
+    lo, hi = T.min(axis=0), T.max(axis=0)
+    span = np.where(hi > lo, hi - lo, np.abs(hi) + 1.0)
+    reasons = []
+    for row, h in zip(X, lev):
+        why = [f"{f} {v:.3g} outside the reference range {a:.3g} to {b:.3g}"
+               for f, v, a, b, s in zip(model.features, row, lo, hi, span)
+               if v < a - RANGE_MARGIN * s or v > b + RANGE_MARGIN * s]
+        if h > cut:
+            why.append(f"leverage {h:.2f} above {cut:.2f} (descriptor combination unlike the reference set)")
+        reasons.append(why)
+    return lev, np.array([not r for r in reasons]), reasons
 
 
 def pairwise_accuracy(y_true, y_pred) -> float:
@@ -146,9 +195,14 @@ def loo(X, y, features, variant, temperature_K) -> np.ndarray:
 
 def cv_metrics(y, y_cv) -> dict:
     y, y_cv = np.asarray(y), np.asarray(y_cv)
+    rho = stats.spearmanr(y, y_cv).statistic if len(y) > 2 else float("nan")
     return {"cv_rmse_log10k": float(np.sqrt(np.mean((y - y_cv) ** 2))),
-            "cv_spearman": float(stats.spearmanr(y, y_cv).statistic),
+            "cv_spearman": float(rho),
             "cv_pairwise_accuracy": float(pairwise_accuracy(y, y_cv))}
+
+
+def _variants(features) -> list[str]:
+    return [v for v in VARIANTS if v != "physics" or fixed_slope_index(features) is not None]
 
 
 def select(X, y, features, temperature_K, variants=VARIANTS) -> tuple[Fit, dict, np.ndarray]:
@@ -156,9 +210,60 @@ def select(X, y, features, temperature_K, variants=VARIANTS) -> tuple[Fit, dict,
     comparison {variant: metrics}, the chosen variant's LOO predictions)."""
     comparison, cv_preds = {}, {}
     for v in variants:
-        if v == "physics" and PENALTY not in features:
+        if v not in _variants(features):
             continue
         cv_preds[v] = loo(X, y, features, v, temperature_K)
         comparison[v] = cv_metrics(y, cv_preds[v])
     chosen = min(comparison, key=lambda v: comparison[v]["cv_rmse_log10k"])
     return fit(X, y, features, chosen, temperature_K), comparison, cv_preds[chosen]
+
+
+def _best_rmse(X, y, features, temperature_K) -> float:
+    return min(float(np.sqrt(np.mean((y - loo(X, y, features, v, temperature_K)) ** 2)))
+               for v in _variants(features))
+
+
+def choose_features(table: dict[str, np.ndarray], y, base: list[str], candidates: list[str],
+                    temperature_K: float, max_added: int = 1) -> tuple[list[str], list[dict]]:
+    """Forward selection: add the candidate that lowers the best LOO RMSE most, while
+    it lowers it by at least MIN_GAIN and fewer than `max_added` were added.
+    table: feature name -> values (n). Returns (features, trail of what was tried)."""
+    y = np.asarray(y, dtype=float)
+    chosen = list(base)
+    X = np.column_stack([table[f] for f in chosen])
+    current = _best_rmse(X, y, chosen, temperature_K)
+    trail = [{"features": list(chosen), "cv_rmse_log10k": current, "added": None}]
+    n = len(y)
+    for _ in range(max_added):
+        best = None
+        for cand in candidates:
+            if cand in chosen or n < 4 * (len(chosen) + 2):
+                continue
+            feats = chosen + [cand]
+            r = _best_rmse(np.column_stack([table[f] for f in feats]), y, feats, temperature_K)
+            trail.append({"features": feats, "cv_rmse_log10k": r, "added": None})
+            if best is None or r < best[1]:
+                best = (cand, r)
+        if best is None or best[1] > (1.0 - MIN_GAIN) * current:
+            break
+        chosen.append(best[0])
+        current = best[1]
+        trail.append({"features": list(chosen), "cv_rmse_log10k": current, "added": best[0]})
+    return chosen, trail
+
+
+def nested_cv(table: dict[str, np.ndarray], y, base, candidates, temperature_K: float,
+              max_added: int = 1) -> dict:
+    """Leave-one-out of the whole procedure (feature choice and variant choice inside
+    each fold): the honest error of the model as built."""
+    y = np.asarray(y, dtype=float)
+    n = len(y)
+    preds = np.empty(n)
+    for i in range(n):
+        mask = np.arange(n) != i
+        sub = {f: np.asarray(v)[mask] for f, v in table.items()}
+        feats, _ = choose_features(sub, y[mask], base, candidates, temperature_K, max_added)
+        Xs = np.column_stack([sub[f] for f in feats])
+        m, _, _ = select(Xs, y[mask], feats, temperature_K)
+        preds[i] = predict(m, np.array([[table[f][i] for f in feats]]))[0][0]
+    return cv_metrics(y, preds) | {"predictions": preds.tolist()}

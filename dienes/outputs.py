@@ -56,18 +56,57 @@ def write_model(summary: dict, path) -> None:
     path.write_text(json.dumps(_clean(summary), indent=1) + "\n")
 
 
-def summary_lines(ranking: pd.DataFrame, out_dir, top: int = 10) -> list[str]:
+def read_table(path) -> pd.DataFrame:
+    """ranking.csv back as written: text cells unneutralised, empty cells as ''."""
+    table = pd.read_csv(path, dtype={"id": str, "smiles": str, "message": str, "domain_note": str},
+                        keep_default_na=False, na_values=[""])
+    for col in ("id", "smiles", "message", "domain_note"):
+        if col in table:
+            table[col] = table[col].fillna("").map(lambda s: s[1:] if s.startswith("'") else s)
+    return table
+
+
+def interval_label(interval: float) -> str:
+    """'90 %' for 0.9: the configured prediction-interval coverage in words."""
+    return f"{100 * float(interval):g} %"
+
+
+def is_true(value) -> bool:
+    return str(value) in ("True", "true", "1", "1.0")
+
+
+def scale_line(summary: dict) -> str:
+    """For which dienophile the ranking is, and on which reference scale the numbers sit."""
+    run = summary.get("run_dienophile", "")
+    base = summary.get("base_dienophile", "")
+    level = summary.get("level", "GFN2-xTB")
+    same = summary.get("note", "") == ""
+    scale = (f"log10 k relative to 1,3-butadiene, scale set by the reference kinetics with {base}"
+             + ("" if same else f" (the run's dienophile {run} is not among them)"))
+    return f"ranking for dienophile {run}, barriers at the {level} level; {scale}"
+
+
+def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, top: int = 10) -> list[str]:
+    summary = summary or {}
     counts = Counter(ranking["status"])
     n_ok = counts.pop("ok", 0)
-    lines = [f"{len(ranking)} input rows: {n_ok} ranked ok"
+    lines = [f"{len(ranking)} input rows: {n_ok} ok"
              + (", " + ", ".join(f"{n} {s}" for s, n in sorted(counts.items())) if counts else "")]
+    if summary:
+        lines.append(scale_line(summary))
     ranked = ranking[ranking["rank"].notna()].sort_values("rank").head(top)
     if len(ranked):
-        lines.append(f"top {len(ranked)} (log10 k predicted, 90% interval):")
+        label = interval_label(summary.get("interval", 0.9))
+        lines.append(f"top {len(ranked)} (predicted log10 k [{label} interval]; "
+                     "! = extrapolation, not backed by the reference set):")
         for _, r in ranked.iterrows():
-            lines.append(f"  {int(r['rank']):>3}  {str(r['id'])[:24]:<24} {r['log10_k_pred']:+6.2f} "
+            flag = " " if is_true(r["in_domain"]) else "!"
+            lines.append(f" {flag}{int(r['rank']):>3}  {str(r['id'])[:24]:<24} {r['log10_k_pred']:+6.2f} "
                          f"[{r['log10_k_low']:+.2f}, {r['log10_k_high']:+.2f}]  "
-                         f"penalty {r['scis_penalty_kJmol']:5.1f} kJ/mol  HOMO {r['homo_eV']:.2f} eV")
+                         f"barrier {r['barrier_kJmol']:6.1f} kJ/mol  penalty {r['scis_penalty_kJmol']:5.1f} kJ/mol")
+        n_out = int((~ranking.loc[ranking["rank"].notna(), "in_domain"].map(is_true)).sum())
+        if n_out:
+            lines.append(f"{n_out} ranked row(s) are extrapolations: see in_domain and domain_note in ranking.csv")
     out = Path(out_dir)
     lines.append(f"outputs: {out / 'ranking.csv'} (table), {out / 'report.html'} (report), "
                  f"{out / 'dienes.sdf'} (3D structures), {out / 'sites.csv'}, {out / 'model.json'}")
@@ -78,11 +117,20 @@ def _sdf_text(value) -> str:
     return " ".join(str(value).split())  # one line: SDF fields and titles cannot hold newlines
 
 
-def write_sdf(table: pd.DataFrame, results: dict, path) -> int:
-    """3D structures of every ranked diene: its planar s-cis conformer (best site) and
-    its global minimum, with properties. Returns the number of records written."""
+def _ts_geometry(computed, row):
+    """(positions, atomic numbers) of the transition structure of a row's best site, or None."""
+    ts = getattr(computed, "transitions", {}).get(str(row.get("transition_key")), {})
+    site = ts.get("sites", {}).get(row["best_site"], {})
+    return (site["positions_A"], ts.get("numbers")) if site.get("positions_A") else None
+
+
+def write_sdf(table: pd.DataFrame, computed, path) -> int:
+    """3D structures of every ranked diene: its planar s-cis conformer (best site), its
+    global minimum and its transition structure with the dienophile, with properties.
+    Returns the number of records written."""
     from rdkit import Chem
     from rdkit.Geometry import Point3D
+    results = computed.structures if hasattr(computed, "structures") else computed
     path = Path(path)
     tmp = path.with_name(f".{path.name}.tmp")
     writer = Chem.SDWriter(str(tmp))
@@ -96,22 +144,33 @@ def write_sdf(table: pd.DataFrame, results: dict, path) -> int:
         mol = Chem.AddHs(mol)
         if [a.GetAtomicNum() for a in mol.GetAtoms()] != geo["numbers"]:
             continue
-        for label, coords in (("planar s-cis", geo["planar_s_cis_A"].get(r["best_site"])),
-                              ("global minimum", geo["minimum_A"])):
+        entries = [("planar s-cis", mol, geo["planar_s_cis_A"].get(r["best_site"])),
+                   ("global minimum", mol, geo["minimum_A"])]
+        ts = _ts_geometry(computed, r)
+        dph = Chem.MolFromSmiles(str(r.get("dienophile", "")))
+        if ts is not None and dph is not None:
+            pair = Chem.CombineMols(mol, Chem.AddHs(dph))
+            if [a.GetAtomicNum() for a in pair.GetAtoms()] == list(ts[1] or []):
+                entries.append(("transition structure", pair, ts[0]))
+        domain = "yes" if is_true(r["in_domain"]) else "no (extrapolation)"
+        for label, base, coords in entries:
             if coords is None:
                 continue
-            m = Chem.Mol(mol)
+            m = Chem.Mol(base)
             conf = Chem.Conformer(m.GetNumAtoms())
             for i, (x, y, z) in enumerate(coords):
                 conf.SetAtomPosition(i, Point3D(x, y, z))
             m.RemoveAllConformers()
             m.AddConformer(conf, assignId=True)
-            m.SetProp("_Name", _sdf_text(f"{r['id']} {label}"))
+            tag = "" if is_true(r["in_domain"]) else " [extrapolation]"
+            m.SetProp("_Name", _sdf_text(f"{r['id']} {label}{tag}"))
             props = {"id": r["id"], "row": int(r["row"]), "conformer": label, "status": r["status"],
-                     "rank": int(r["rank"]), "smiles": r["smiles"], "isomer_smiles": r["isomer_smiles"],
-                     "diene_site": r["best_site"], "scis_penalty_kJmol": r["scis_penalty_kJmol"],
+                     "rank": int(r["rank"]), "in_domain": domain, "domain_note": r.get("domain_note", ""),
+                     "smiles": r["smiles"], "isomer_smiles": r["isomer_smiles"],
+                     "diene_site": r["best_site"], "dienophile": r.get("dienophile", ""),
+                     "barrier_kJmol": r["barrier_kJmol"], "scis_penalty_kJmol": r["scis_penalty_kJmol"],
                      "homo_eV": r["homo_eV"], "lumo_eV": r["lumo_eV"], "log10_k_pred": r["log10_k_pred"],
-                     "distortion_kJmol": r["distortion_kJmol"], "seed": res.get("seed", "")}
+                     "seed": res.get("seed", "")}
             for k, v in props.items():
                 m.SetProp(k, _sdf_text(v))
             writer.write(m)

@@ -22,7 +22,9 @@ from .orbitals import site_frontier
 from .sites import find_sites
 from .torsion import analyse_structure
 
-RESULT_SCHEMA = 1
+RESULT_SCHEMA = 2
+LOW_MINIMA_KEPT = 4              # distinct minima whose geometries are kept ...
+LOW_MINIMA_WINDOW_KJMOL = 10.0   # ... when within this of the global minimum (kJ/mol)
 
 
 def backend_settings(settings: dict) -> BackendSettings:
@@ -74,7 +76,7 @@ def compute_structure(smiles: str, settings: dict, key: str = "") -> dict:
     except ConformerError as exc:
         return out | {"status": "embed_failed", "message": str(exc)}
     except BackendError as exc:
-        return out | {"status": "xtb_failed", "message": str(exc)}
+        return out | {"status": "scf_failed", "message": f"GFN2-xTB ({settings.get('backend')}): {exc}"}
     site_rows = []
     planar = {}
     for res in an.sites:
@@ -99,6 +101,9 @@ def compute_structure(smiles: str, settings: dict, key: str = "") -> dict:
     message = "; ".join(an.notes)
     if status == "locked_s_trans":
         message = "every diene site is held s-trans by its ring: no concerted [4+2]"
+    elif status == "no_planar_start":
+        message = "; ".join(filter(None, [message, "no planar s-cis structure could be started for any "
+                                          "diene site (the force field kept every start away from 0 deg)"]))
     if not an.all_converged:
         message = "; ".join(filter(None, [message, "an optimisation hit max_steps before converging"]))
     return out | {
@@ -111,6 +116,9 @@ def compute_structure(smiles: str, settings: dict, key: str = "") -> dict:
         "sites": site_rows,
         "minima_rel_kJmol": [round(m.energy_kJmol - an.global_min.energy_kJmol, 4) for m in an.minima],
         "geometry": {"numbers": numbers, "minimum_A": _xyz(an.global_min.positions_A),
+                     # the lowest distinct minima, for a better level to choose its own minimum from
+                     "low_minima_A": [_xyz(m.positions_A) for m in an.minima[:LOW_MINIMA_KEPT]
+                                      if m.energy_kJmol - an.global_min.energy_kJmol <= LOW_MINIMA_WINDOW_KJMOL],
                      "planar_s_cis_A": planar},
     }
 

@@ -1,27 +1,67 @@
 """From per-structure results to the ranked table: features per site, the
 reactivity model on the reference set, predictions, best site and isomer,
-rank. Pure data in, data out; files are written by :mod:`dienes.outputs`."""
+rank. Pure data in, data out; files are written by :mod:`dienes.outputs`.
+
+Every site's features come from its per-structure result (s-cis penalty,
+frontier orbitals) and from its transition-structure result with the
+dienophile of its row: the run's dienophile for the library, each reference
+row's own dienophile for the reference set.
+"""
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from rdkit import Chem
 
 from . import model as mdl
 from .orbitals import regio_hint
 
+TS_COLUMNS = ("barrier_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
+              "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
+              "model_barrier_kJmol", "ts_imag_cm1", "face_gap_kJmol", "orientation_gap_kJmol")
+RANKED_STATUSES = ("ok", "ts_unverified")
 
 
-STRAIN_COLUMNS = ("distortion_kJmol", "dienophile_distortion_kJmol", "interaction_kJmol",
-                  "model_barrier_kJmol")
+@dataclass
+class Computed:
+    """Everything computed for a run, by file stem: structures by key, transition
+    structures by '<key>__<transition hash>', dienophiles by their hash."""
+
+    structures: dict
+    transitions: dict = field(default_factory=dict)
+    dienophiles: dict = field(default_factory=dict)
+    refined: dict = field(default_factory=dict)
+
+    def transition(self, key: str, thash: str) -> dict:
+        return self.transitions.get(f"{key}__{thash}", {"status": "missing", "sites": {}})
 
 
-def site_features(site: dict, dienophile: dict, strain: dict | None = None) -> dict:
-    """Model features of one computed site (units in the names); `strain` is the
-    site's entry of a strain result, when the step ran."""
+def canonical(smiles: str) -> str:
+    from rdkit import Chem
+    m = Chem.MolFromSmiles(smiles)
+    return Chem.MolToSmiles(m) if m is not None else smiles
+
+
+def _pairs_label(pairs, n_diene_atoms: int) -> str:
+    (c1, a), (c4, b) = pairs
+    return (f"diene C{c1 + 1} to dienophile C{a - n_diene_atoms + 1}, "
+            f"C{c4 + 1} to C{b - n_diene_atoms + 1}")
+
+
+def _termini_equivalent(smiles: str, atoms) -> bool:
+    from rdkit import Chem
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        return False
+    ranks = list(Chem.CanonicalRankAtoms(Chem.AddHs(mol), breakTies=False))
+    return ranks[atoms[0]] == ranks[atoms[3]]
+
+
+def site_features(site: dict, dienophile: dict, ts_site: dict | None, smiles: str = "") -> dict:
+    """Model features and annotations of one computed site (units in the names)."""
     normal = dienophile["lumo_eV"] - site["homo_eV"]
     inverse = site["lumo_eV"] - dienophile["homo_eV"]
     rf = max(site["reactive_fraction"], 1e-9)
@@ -29,112 +69,60 @@ def site_features(site: dict, dienophile: dict, strain: dict | None = None) -> d
            "lumo_eV": site["lumo_eV"], "gap_normal_eV": normal, "gap_inverse_eV": inverse,
            "demand": "normal" if normal <= inverse else "inverse",
            "reactive_log10_fraction": math.log10(rf)}
-    for col in STRAIN_COLUMNS:
-        out[col] = strain[col] if strain else float("nan")
-    out["ts_approach"] = strain["approach"] if strain else ""
+    ts_site = ts_site or {"status": "missing", "message": "no transition-structure result"}
+    for col in TS_COLUMNS:
+        v = ts_site.get(col)
+        out[col] = float(v) if isinstance(v, (int, float)) and v is not None else float("nan")
+    out["ts_status"] = ts_site.get("status", "missing")
+    out["ts_message"] = ts_site.get("message", "")
+    out["ts_verified"] = bool(ts_site.get("ts_verified", False))
+    out["ts_approach"] = ts_site.get("approach", "")
+    out["face_preference"] = ts_site.get("face_preference") or ""
+    pairs = ts_site.get("preferred_pairs") or ts_site.get("pairs")
+    nd = ts_site.get("n_diene_atoms", 0)
+    if not pairs or ts_site.get("orientation_gap_kJmol") is None or dienophile.get("symmetric_bond") \
+            or (smiles and _termini_equivalent(smiles, site["atoms"])):
+        out["regio_ts"] = "symmetric" if pairs else ""
+    else:
+        out["regio_ts"] = _pairs_label(pairs, nd)
     return out
-
-
-def _strain_of(strain: dict | None, key: str, label: str) -> dict | None:
-    if not strain:
-        return None
-    return strain.get(key, {}).get("sites", {}).get(label)
 
 
 def _usable_sites(result: dict) -> list[dict]:
     return [s for s in result.get("sites", []) if s["status"] == "ok"]
 
 
-def reference_site(result: dict) -> dict | None:
-    """The site a reference diene is fitted with: lowest penalty, then highest HOMO."""
-    sites = _usable_sites(result)
-    if not sites:
-        return None
-    return min(sites, key=lambda s: (round(s["scis_penalty_kJmol"], 3), -s["homo_eV"]))
-
-
-def canonical(smiles: str) -> str:
-    m = Chem.MolFromSmiles(smiles)
-    return Chem.MolToSmiles(m) if m is not None else smiles
-
-
-def fit_reference(reference: list[dict], results: dict, dienophile: dict, config: dict,
-                  strain: dict | None = None):
-    """Fit the model on the reference records.
-
-    reference: manifest records of the reference file (with extra columns
-    log10_k, dienophile_smiles, temperature_K). Returns (fit, summary dict,
-    reference table DataFrame).
-    """
-    features = [f for f in config["model"]["features"]
-                if config["strain"]["enabled"] or f not in STRAIN_COLUMNS]
-    run_dienophile = canonical(config["dienophile"])
+def record_sites(rec: dict, computed: Computed) -> list[dict]:
+    """Feature rows of every computed site of every isomer of one record."""
+    dph = computed.dienophiles.get(rec["dienophile"]["dhash"])
     rows = []
-    for rec in reference:
-        row = {"id": rec["id"], "smiles": rec["smiles"], "used": False, "reason": ""}
-        try:
-            row["log10_k"] = float(rec["extra"].get("log10_k", "nan"))
-        except ValueError:
-            row["log10_k"] = float("nan")
-        row["dienophile_smiles"] = rec["extra"].get("dienophile_smiles", "")
-        row["temperature_K"] = float(rec["extra"].get("temperature_K") or config["temperature_K"])
-        row["provenance"] = rec["extra"].get("provenance", "")
-        if rec["status"] != "ok" or not rec["isomers"]:
-            row["reason"] = f"{rec['status']}: {rec['message']}"
-        elif not np.isfinite(row["log10_k"]):
-            row["reason"] = "log10_k missing or not a number"
-        else:
-            key = rec["isomers"][0]["key"]
-            res = results.get(key, {})
-            site = reference_site(res) if res.get("status") == "ok" else None
-            if site is None:
-                row["reason"] = f"structure {res.get('status', 'missing')}: {res.get('message', '')}"
+    for iso in rec["isomers"]:
+        res = computed.structures.get(iso["key"], {"status": "missing", "message": "no result file"})
+        ts = computed.transition(iso["key"], rec["dienophile"]["thash"])
+        for site in res.get("sites", []):
+            row = {"row": rec["row"], "id": rec["id"], "isomer_smiles": iso["smiles"], "key": iso["key"],
+                   "structure_status": res["status"], "site": site["label"], "site_kind": site["kind"],
+                   "aromatic": site["aromatic"], "site_status": site["status"],
+                   "reactive_fraction": site["reactive_fraction"], "dihedral_min_deg": site["dihedral_min_deg"],
+                   "homo_share": site["homo_share"], "dienophile": rec["dienophile"]["smiles"],
+                   "transition_key": f"{iso['key']}__{rec['dienophile']['thash']}"}
+            if site["status"] == "ok" and dph is not None:
+                row.update(site_features(site, dph, ts.get("sites", {}).get(site["label"]), iso["smiles"]))
+                row["regio_hint"] = site_regio_hint(site, dph, row["demand"])
             else:
-                row.update(site_features(site, dienophile, _strain_of(strain, key, site["label"])))
-                row["site_kind"], row["aromatic"] = site["kind"], bool(site["aromatic"])
-                missing = [f for f in features if not np.isfinite(row[f])]
-                row["used"] = not missing
-                row["reason"] = f"no value for {missing}" if missing else ""
-        rows.append(row)
-    table = pd.DataFrame(rows)
-    used = table[table["used"]].copy()
-    if len(used) < len(features) + 3:
-        raise ValueError(f"only {len(used)} usable reference dienes; the model needs at least "
-                         f"{len(features) + 3} (see results/reference_fit.csv for the reasons)")
-    used["dienophile_canonical"] = used["dienophile_smiles"].map(canonical)
-    counts = used["dienophile_canonical"].value_counts()
-    base = run_dienophile if run_dienophile in counts.index else counts.index[0]
-    note = "" if base == run_dienophile else (
-        f"the run's dienophile is not in the reference set: predictions are on the scale of {base}")
-    terms = [d for d in counts.index if d != base]
-    term_names = [f"dienophile[{d}]" for d in terms]
-    for d, name in zip(terms, term_names):
-        used[name] = (used["dienophile_canonical"] == d).astype(float)
-    all_features = features + term_names
-    T_ref = float(used.loc[used["dienophile_canonical"] == base, "temperature_K"].median())
-    X, y = used[all_features].to_numpy(float), used["log10_k"].to_numpy(float)
-    fit, comparison, y_cv = mdl.select(X, y, all_features, T_ref)
-    table["in_training_set"] = table["used"]
-    table.loc[used.index, "log10_k_cv"] = y_cv
-    table.loc[used.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
-    ols = mdl.fit(X, y, all_features, "ols", T_ref)
-    summary = {"n_reference": int(len(used)), "features": all_features,
-               "dienophile_terms": dict(zip(term_names, terms)), "base_dienophile": base,
-               "variant": fit.variant, "comparison": comparison,
-               **comparison[fit.variant],
-               "coefficients": dict(zip(all_features, fit.coef_per_unit)),
-               "coefficient_se": dict(zip(all_features, fit.coef_se)),
-               "intercept": fit.intercept, "residual_sd_log10k": fit.resid_sd,
-               "reference_temperature_K": T_ref,
-               "physical_penalty_coefficient": -mdl.log10_units_per_kjmol(T_ref),
-               "interval": config["model"]["interval"], "note": note,
-               "training_classes": sorted({site_class(k, a) for k, a in
-                                           zip(used["site_kind"], used["aromatic"])})}
-    if mdl.PENALTY in all_features:
-        j = all_features.index(mdl.PENALTY)
-        summary["ols_penalty_coefficient"] = ols.coef_per_unit[j]
-        summary["ols_penalty_coefficient_se"] = ols.coef_se[j]
-    return fit, summary, table
+                row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
+                            "lumo_eV": site["lumo_eV"], "ts_status": "not_computed"})
+            rows.append(row)
+    return rows
+
+
+def site_table(records: list[dict], computed: Computed) -> pd.DataFrame:
+    """One row per (input row, isomer, site) that was computed."""
+    rows = []
+    for rec in records:
+        if rec["status"] == "ok":
+            rows += record_sites(rec, computed)
+    return pd.DataFrame(rows)
 
 
 def site_class(kind: str, aromatic) -> str:
@@ -142,34 +130,142 @@ def site_class(kind: str, aromatic) -> str:
     return f"{kind}{' aromatic' if bool(aromatic) else ''}"
 
 
-def predict_sites(site_rows: pd.DataFrame, fit, config: dict,
-                  training_classes: list[str] | None = None) -> pd.DataFrame:
-    """Predictions per site. A site is in the domain when its leverage is within
-    3p/n and its class (kind, aromatic or not) occurs in the reference set."""
+def _fit_site(sites: list[dict]) -> dict | None:
+    """The site a reference diene is fitted with: the lowest verified barrier."""
+    ok = [s for s in sites if s.get("site_status") == "ok" and s.get("ts_verified")
+          and np.isfinite(s.get("barrier_kJmol", np.nan))]
+    return min(ok, key=lambda s: s["barrier_kJmol"]) if ok else None
+
+
+def reference_rows(reference: list[dict], computed: Computed) -> pd.DataFrame:
+    """One row per reference record with its fitted site's features (or why not)."""
+    rows = []
+    for rec in reference:
+        row = {"id": rec["id"], "smiles": rec["smiles"], "used": False, "reason": ""}
+        try:
+            row["log10_k"] = float(rec["extra"].get("log10_k", "nan"))
+        except ValueError:
+            row["log10_k"] = float("nan")
+        row["dienophile_smiles"] = rec["dienophile"]["smiles"]
+        row["temperature_K"] = float(rec["extra"].get("temperature_K") or rec.get("temperature_K") or "nan")
+        row["provenance"] = rec["extra"].get("provenance", "")
+        if rec["status"] != "ok" or not rec["isomers"]:
+            row["reason"] = f"{rec['status']}: {rec['message']}"
+        elif not np.isfinite(row["log10_k"]):
+            row["reason"] = "log10_k missing or not a number"
+        else:
+            site = _fit_site(record_sites(rec, computed))
+            if site is None:
+                res = computed.structures.get(rec["isomers"][0]["key"], {})
+                row["reason"] = (f"structure {res.get('status', 'missing')}: {res.get('message', '')}"
+                                 if res.get("status") != "ok" else "no verified transition structure")
+            else:
+                row.update({k: v for k, v in site.items() if k not in ("row", "id")})
+                row["used"] = True
+        rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def fit_reference(reference: list[dict], computed: Computed, config: dict, run_dienophile: str,
+                  suffix: str = ""):
+    """Fit the model on the reference records. `suffix` ('' or '_refined') picks the
+    level of the energy features. Returns (fit, summary dict, reference table)."""
+    table = reference_rows(reference, computed)
+    level = lambda f: f.replace("_kJmol", f"{suffix}_kJmol") if suffix and f.endswith("_kJmol") else f  # noqa: E731
+    base = [level(f) for f in config["model"]["features"]]
+    candidates = [level(f) for f in config["model"].get("candidates", [])]
+    for f in base + candidates:
+        if f not in table:
+            table[f] = np.nan
+    usable = table["used"] & table[base].notna().all(axis=1)
+    table.loc[table["used"] & ~usable, "reason"] = "no value for a model feature"
+    table["used"] = usable
+    used = table[table["used"]].copy()
+    if len(used) < len(base) + 3:
+        raise ValueError(f"only {len(used)} usable reference dienes; the model needs at least "
+                         f"{len(base) + 3} (see results/reference_fit.csv for the reasons)")
+    used["dienophile_canonical"] = used["dienophile_smiles"].map(canonical)
+    counts = used["dienophile_canonical"].value_counts()
+    run_canonical = canonical(run_dienophile)
+    base_dph = run_canonical if run_canonical in counts.index else counts.index[0]
+    note = "" if base_dph == run_canonical else (
+        f"the run's dienophile is not in the reference set: barriers are computed with the run's "
+        f"dienophile, the scale (intercept) is that of {base_dph}")
+    terms = [d for d in counts.index if d != base_dph]
+    term_names = [f"dienophile[{d}]" for d in terms]
+    columns = {f: used[f].to_numpy(float) for f in base + candidates if used[f].notna().all()}
+    for d, name in zip(terms, term_names):
+        columns[name] = (used["dienophile_canonical"] == d).to_numpy(float)
+    y = used["log10_k"].to_numpy(float)
+    T_ref = float(used.loc[used["dienophile_canonical"] == base_dph, "temperature_K"].median())
+    cands = [c for c in candidates if c in columns]
+    max_added = int(config["model"].get("max_added", 0))
+    features, trail = mdl.choose_features(columns, y, base + term_names, cands, T_ref, max_added)
+    X = np.column_stack([columns[f] for f in features])
+    fit, comparison, y_cv = mdl.select(X, y, features, T_ref)
+    honest = mdl.nested_cv(columns, y, base + term_names, cands, T_ref, max_added) if cands and max_added \
+        else None
+    table["in_training_set"] = table["used"]
+    table.loc[used.index, "log10_k_cv"] = y_cv
+    table.loc[used.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
+    ols = mdl.fit(X, y, features, "ols", T_ref)
+    physical = -mdl.log10_units_per_kjmol(T_ref)
+    summary = {"level": "refined" if suffix else "GFN2-xTB", "n_reference": int(len(used)),
+               "features": features, "base_features": base, "candidates": cands, "selection": trail,
+               "dienophile_terms": dict(zip(term_names, terms)), "base_dienophile": base_dph,
+               "run_dienophile": run_dienophile,
+               "variant": fit.variant, "comparison": comparison, **comparison[fit.variant],
+               "coefficients": dict(zip(features, fit.coef_per_unit)),
+               "coefficient_se": dict(zip(features, fit.coef_se)),
+               "fixed_feature": fit.fixed_feature,
+               "intercept": fit.intercept, "residual_sd_log10k": fit.resid_sd,
+               "reference_temperature_K": T_ref, "physical_slope_per_kJmol": physical,
+               "ols_coefficients": dict(zip(features, ols.coef_per_unit)),
+               "ols_coefficient_se": dict(zip(features, ols.coef_se)),
+               "interval": config["model"]["interval"], "note": note,
+               "training_classes": sorted({site_class(k, a) for k, a in
+                                           zip(used["site_kind"], used["aromatic"])})}
+    if honest is not None:
+        summary["nested_cv"] = {k: v for k, v in honest.items() if k != "predictions"}
+        table.loc[used.index, "log10_k_nested_cv"] = honest["predictions"]
+    return fit, summary, table
+
+
+def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict) -> pd.DataFrame:
+    """Predictions per site for the run's dienophile, with the applicability domain:
+    every model descriptor within the reference set's span and leverage, the site's
+    class (kind, aromatic or not) in the reference set, and a verified saddle."""
     out = site_rows.copy()
-    for name in fit.features:
-        if name.startswith("dienophile["):
-            out[name] = 0.0  # predictions for the base dienophile
-    ok = (out["site_status"] == "ok") & out[fit.features].notna().all(axis=1)
+    run = canonical(summary["run_dienophile"])
+    for name, smiles in summary["dienophile_terms"].items():
+        out[name] = 1.0 if canonical(smiles) == run else 0.0
     for col in ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage"):
         out[col] = np.nan
     out["in_domain"] = pd.Series([None] * len(out), dtype=object)
+    out["domain_note"] = ""
+    if not len(out):
+        return out
+    for f in fit.features:
+        if f not in out:
+            out[f] = np.nan
+    ok = (out["site_status"] == "ok") & out[fit.features].notna().all(axis=1)
     if ok.any():
         X = out.loc[ok, fit.features].to_numpy(float)
-        pred, lo, hi, lev, dom = mdl.predict(fit, X, config["model"]["interval"])
+        pred, lo, hi = mdl.predict(fit, X, config["model"]["interval"])
+        lev, _, reasons = mdl.domain(fit, X)
         out.loc[ok, "log10_k_pred"] = pred
         out.loc[ok, "log10_k_low"] = lo
         out.loc[ok, "log10_k_high"] = hi
         out.loc[ok, "leverage"] = lev
-        out["domain_note"] = ""
         classes = [site_class(k, a) for k, a in zip(out.loc[ok, "site_kind"], out.loc[ok, "aromatic"])]
+        verified = out.loc[ok, "ts_verified"].fillna(False).astype(bool).tolist()
         notes = []
-        for d, c in zip(dom, classes):
-            why = []
-            if not d:
-                why.append("descriptors beyond the reference set's range")
-            if training_classes is not None and c not in training_classes:
+        for why, c, v in zip(reasons, classes, verified):
+            why = list(why)
+            if c not in summary["training_classes"]:
                 why.append(f"no reference diene of this class ({c})")
+            if not v:
+                why.append("saddle not verified: barrier from the fixed-bond model structure")
             notes.append("; ".join(why))
         out.loc[ok, "in_domain"] = [not n for n in notes]
         out.loc[ok, "domain_note"] = notes
@@ -187,42 +283,21 @@ def site_regio_hint(site: dict, dienophile: dict, demand_type: str) -> str:
                       tuple(i + 1 for i in dienophile["reactive_bond"]))
 
 
-def site_table(records: list[dict], results: dict, dienophile: dict,
-               strain: dict | None = None) -> pd.DataFrame:
-    """One row per (input row, isomer, site) that was computed."""
-    rows = []
-    for rec in records:
-        if rec["status"] != "ok":
-            continue
-        for iso in rec["isomers"]:
-            res = results.get(iso["key"], {"status": "missing", "message": "no result file"})
-            for site in res.get("sites", []):
-                row = {"row": rec["row"], "id": rec["id"], "isomer_smiles": iso["smiles"],
-                       "key": iso["key"], "structure_status": res["status"],
-                       "site": site["label"], "site_kind": site["kind"], "aromatic": site["aromatic"],
-                       "site_status": site["status"], "reactive_fraction": site["reactive_fraction"],
-                       "dihedral_min_deg": site["dihedral_min_deg"],
-                       "homo_share": site["homo_share"]}
-                if site["status"] == "ok":
-                    row.update(site_features(site, dienophile,
-                                             _strain_of(strain, iso["key"], site["label"])))
-                    row["regio_hint"] = site_regio_hint(site, dienophile, row["demand"])
-                else:
-                    row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
-                                "lumo_eV": site["lumo_eV"]})
-                rows.append(row)
-    return pd.DataFrame(rows)
+RANKING_COLUMNS = ["rank", "id", "in_domain", "smiles", "status", "message", "domain_note",
+                   "log10_k_pred", "log10_k_low", "log10_k_high", "barrier_kJmol",
+                   "scis_penalty_kJmol", "reactive_fraction", "homo_eV", "lumo_eV", "gap_normal_eV",
+                   "gap_inverse_eV", "demand", "regio_hint", "regio_ts", "orientation_gap_kJmol",
+                   "face_preference", "face_gap_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
+                   "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
+                   "model_barrier_kJmol", "ts_imag_cm1", "ts_verified", "best_site", "site_kind",
+                   "n_sites", "dihedral_min_deg", "isomer_smiles", "n_isomers", "structure_key",
+                   "transition_key", "n_gradients", "converged", "dienophile", "row"]
+BEST_SITE_COLUMNS = [c for c in RANKING_COLUMNS if c not in (
+    "rank", "id", "smiles", "status", "message", "best_site", "n_sites", "n_isomers", "structure_key",
+    "n_gradients", "converged", "row")]
 
 
-RANKING_COLUMNS = ["rank", "id", "smiles", "status", "message", "log10_k_pred", "log10_k_low",
-                   "log10_k_high", "in_domain", "scis_penalty_kJmol", "reactive_fraction",
-                   "homo_eV", "lumo_eV", "gap_normal_eV", "gap_inverse_eV", "demand", "regio_hint",
-                   "distortion_kJmol", "interaction_kJmol", "model_barrier_kJmol",
-                   "best_site", "site_kind", "n_sites", "dihedral_min_deg", "isomer_smiles",
-                   "n_isomers", "structure_key", "n_gradients", "converged", "row"]
-
-
-def rank_table(records: list[dict], results: dict, sites: pd.DataFrame) -> pd.DataFrame:
+def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> pd.DataFrame:
     """One row per input record, in input order, best isomer and site of each."""
     rows = []
     for rec in records:
@@ -235,40 +310,43 @@ def rank_table(records: list[dict], results: dict, sites: pd.DataFrame) -> pd.Da
             ok = mine[mine["site_status"] == "ok"] if len(mine) else mine
             if len(ok) and ok["log10_k_pred"].notna().any():
                 best = ok.loc[ok["log10_k_pred"].idxmax()]
-                res = results[best["key"]]
-                row.update({c: best[c] for c in
-                            ("log10_k_pred", "log10_k_low", "log10_k_high", "in_domain",
-                             "scis_penalty_kJmol", "reactive_fraction", "homo_eV", "lumo_eV",
-                             "gap_normal_eV", "gap_inverse_eV", "demand", "regio_hint",
-                             "distortion_kJmol", "interaction_kJmol", "model_barrier_kJmol",
-                             "site_kind", "dihedral_min_deg", "isomer_smiles")})
+                res = computed.structures[best["key"]]
+                row.update({c: best[c] for c in BEST_SITE_COLUMNS if c in best})
                 row.update({"best_site": best["site"], "n_sites": int((mine["key"] == best["key"]).sum()),
                             "structure_key": best["key"], "n_gradients": res.get("n_gradients"),
                             "converged": res.get("converged")})
-                extra = res.get("message", "")
-                domain = best.get("domain_note", "")
-                domain = f"extrapolation: {domain}" if isinstance(domain, str) and domain else ""
-                row["message"] = "; ".join(filter(None, [row["message"], extra, domain]))
+                notes = [row["message"], res.get("message", "")]
+                if best["ts_status"] != "ok":
+                    row["status"] = best["ts_status"]
+                    notes.append(f"transition structure: {best.get('ts_message', '')}")
+                row["message"] = "; ".join(filter(None, notes))
             else:
-                statuses = [results.get(i["key"], {}).get("status", "missing") for i in rec["isomers"]]
-                msgs = [results.get(i["key"], {}).get("message", "no result file") for i in rec["isomers"]]
-                if "ok" in statuses and len(ok):
-                    row["status"] = "not_predicted"
-                    msgs = ["a model descriptor could not be computed for any site "
-                            "(see results/sites.csv)"]
-                else:
-                    row["status"] = statuses[0] if statuses else "missing"
-                row["message"] = "; ".join(filter(None, [row["message"]] + sorted(set(msgs))))
-                if rec["isomers"]:
-                    row["structure_key"] = rec["isomers"][0]["key"]
+                row.update(_unranked(rec, computed, ok))
         rows.append(row)
     table = pd.DataFrame(rows)
     for col in RANKING_COLUMNS:
         if col not in table:
             table[col] = np.nan
-    ranked = table["status"].eq("ok") & table["log10_k_pred"].notna()
+    ranked = table["status"].isin(RANKED_STATUSES) & table["log10_k_pred"].notna()
     order = table.loc[ranked].sort_values(["log10_k_pred", "row"], ascending=[False, True]).index
     table["rank"] = pd.Series(dtype="Int64")
     table.loc[order, "rank"] = np.arange(1, len(order) + 1)
     table["rank"] = table["rank"].astype("Int64")
     return table[RANKING_COLUMNS + [c for c in table.columns if c not in RANKING_COLUMNS]]
+
+
+def _unranked(rec: dict, computed: Computed, ok: pd.DataFrame) -> dict:
+    """Status and message of a record with no prediction."""
+    results = [computed.structures.get(i["key"], {"status": "missing", "message": "no result file"})
+               for i in rec["isomers"]]
+    statuses = [r.get("status", "missing") for r in results]
+    msgs = [r.get("message", "") for r in results]
+    out = {"structure_key": rec["isomers"][0]["key"] if rec["isomers"] else np.nan}
+    if "ok" in statuses and len(ok):
+        ts_msgs = sorted({str(m) for m in ok.get("ts_message", pd.Series(dtype=str)).fillna("") if m})
+        out["status"] = "not_predicted"
+        msgs = ["a model descriptor could not be computed for any site (see results/sites.csv)"] + ts_msgs
+    else:
+        out["status"] = statuses[0] if statuses else "missing"
+    out["message"] = "; ".join(filter(None, [rec["message"]] + sorted(set(msgs))))
+    return out

@@ -153,7 +153,7 @@ def _kv(rows) -> str:
 
 def _table(table: pd.DataFrame, sites_atoms: dict) -> str:
     cols = ["rank", "structure", "id", "status", "log10 k (90% interval)", "in domain",
-            "s-cis penalty kJ/mol", "HOMO eV", "LUMO eV", "distortion kJ/mol", "regio hint",
+            "barrier kJ/mol", "s-cis penalty kJ/mol", "HOMO eV", "LUMO eV", "regio hint",
             "site", "message"]
     head = "<tr>" + "".join(f"<th>{c}</th>" for c in cols) + "</tr>"
     order = table.assign(_r=table["rank"].astype(float).fillna(1e9)).sort_values(["_r", "row"])
@@ -171,10 +171,10 @@ def _table(table: pd.DataFrame, sites_atoms: dict) -> str:
             f"<td class='{'status-ok' if ok else 'status-bad'}'>{esc(r['status'])}</td>",
             f"<td class='num'>{pred}</td>",
             f"<td>{_domain(r['in_domain']) if ok else ''}</td>",
+            f"<td class='num'>{_num(r['barrier_kJmol'], '{:.1f}')}</td>",
             f"<td class='num'>{_num(r['scis_penalty_kJmol'], '{:.1f}')}</td>",
             f"<td class='num'>{_num(r['homo_eV'])}</td>",
             f"<td class='num'>{_num(r['lumo_eV'])}</td>",
-            f"<td class='num'>{_num(r['distortion_kJmol'], '{:.1f}')}</td>",
             f"<td>{esc(r['regio_hint'])}</td>",
             f"<td>{esc(r['site_kind'])}<div class='small'>{esc(r['best_site'])}</div></td>",
             f"<td>{esc(r['message'])}</td>",
@@ -184,7 +184,8 @@ def _table(table: pd.DataFrame, sites_atoms: dict) -> str:
 
 
 def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.DataFrame,
-          settings: dict, versions: dict, profiles, dienophile_smiles: str) -> str:
+          settings: dict, versions: dict, profiles, config: dict) -> str:
+    dienophile_smiles = config["dienophile"]
     counts = table["status"].value_counts().to_dict()
     sites_atoms = {}
     for _, s in sites.iterrows() if len(sites) else []:
@@ -200,8 +201,7 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
         ("LOO RMSE (log10 units)", _num(model.get("cv_rmse_log10k"))),
         ("LOO Spearman rho", _num(model.get("cv_spearman"))),
         ("LOO pairwise order accuracy", _num(model.get("cv_pairwise_accuracy"))),
-        ("physical penalty coefficient -1/(RT ln 10)", _num(model.get("physical_penalty_coefficient"), "{:+.4f}")),
-        ("free (OLS) penalty coefficient", _num(model.get("ols_penalty_coefficient"), "{:+.4f}")),
+        ("transition-state-theory slope -1/(RT ln 10)", _num(model.get("physical_slope_per_kJmol"), "{:+.4f}")),
         ("reference file sha256", str(model.get("reference_sha256", ""))[:16]),
     ] + coef_rows
     if model.get("note"):

@@ -1,138 +1,324 @@
 """The steps of a run, each one call for a workflow rule:
-prepare (read the library once) -> compute (one structure) -> dienophile ->
-rank (model, ranking, outputs)."""
+
+prepare (read the library once, list the work) -> structures (a batch of
+conformer searches) -> dienophile -> transition states (a batch) ->
+[shortlist -> refinement] -> rank -> report.
+
+Per-structure results are files named by what they depend on and reused by
+every later run; a batch job computes only the members whose file is absent.
+Heavy libraries are imported inside the step that needs them, so a job pays
+only for what it uses.
+"""
 
 from __future__ import annotations
 
 import hashlib
 import logging
+import math
+import os
+import time
 from pathlib import Path
 
-from . import backends, library, outputs, pipeline, ranking
 from . import settings as cfg
 
 log = logging.getLogger("dienes")
+
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "GOTO_NUM_THREADS",
+                    "VECLIB_MAXIMUM_THREADS", "NUMEXPR_NUM_THREADS")
+AUTO_JOBS = 16           # structures_per_job 'auto': new work is cut into about this many jobs
+AUTO_MAX_PER_JOB = 25    # ... of at most this many structures
+
+
+def pin_threads(n: int) -> None:
+    """Hold every OpenMP/BLAS pool of this process to `n` threads (call before heavy imports)."""
+    for var in THREAD_VARIABLES:
+        os.environ[var] = str(int(n))
 
 
 def _sha256(path) -> str:
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
-def _record_dict(rec: library.Record, structure_settings: dict) -> dict:
+def _json():
+    from . import pipeline
+    return pipeline.write_json, pipeline.read_json
+
+
+# ---------------------------------------------------------------- file names
+
+def structure_path(results, key: str) -> Path:
+    return Path(results) / "structures" / f"{key}.json"
+
+
+def dienophile_path(results, dhash: str) -> Path:
+    return Path(results) / "dienophiles" / f"{dhash}.json"
+
+
+def transition_path(results, stem: str) -> Path:
+    return Path(results) / "transition" / f"{stem}.json"
+
+
+def batch_path(results, stage: str, bid: str) -> Path:
+    return Path(results) / "batches" / stage / f"{bid}.json"
+
+
+# ------------------------------------------------------------------ prepare
+
+def _record_dict(rec, config: dict, dienophile_smiles: str) -> dict:
+    st = cfg.structure_settings(config)
     return {"row": rec.row, "id": rec.id, "smiles": rec.smiles, "extra": rec.extra,
             "status": rec.status, "message": rec.message, "std_smiles": rec.std_smiles,
+            "dienophile": {"smiles": dienophile_smiles,
+                           "dhash": cfg.dienophile_hash(config, dienophile_smiles),
+                           "thash": cfg.transition_hash(config, dienophile_smiles)},
             "isomers": [{"smiles": i.smiles, "inchikey": i.inchikey,
-                         "key": cfg.structure_key(i.inchikey, structure_settings)}
-                        for i in rec.isomers]}
+                         "key": cfg.structure_key(i.inchikey, st)} for i in rec.isomers]}
 
 
-def prepare(config: dict, manifest_path) -> dict:
-    """Read and standardise the library and the reference set; write the manifest
-    that lists every record and every structure to compute."""
+def _batches(missing: list[str], per_job, stage: str) -> dict:
+    """Cut missing work into jobs: {batch id: members}; the id names the members."""
+    if not missing:
+        return {}
+    size = (max(1, min(AUTO_MAX_PER_JOB, math.ceil(len(missing) / AUTO_JOBS)))
+            if per_job == "auto" else int(per_job))
+    out = {}
+    for k in range(0, len(missing), size):
+        members = missing[k:k + size]
+        bid = hashlib.sha256("\n".join([stage] + members).encode()).hexdigest()[:12]
+        out[bid] = members
+    return out
+
+
+def _reference_dienophile(rec, config: dict) -> tuple[str, str]:
+    """A reference row's dienophile, or the run's (with a note) when it has none or a bad one."""
+    from .library import check_dienophile
+    given = (rec.extra.get("dienophile_smiles") or "").strip()
+    if not given:
+        return config["dienophile"], "no dienophile_smiles: the run's dienophile is used"
+    problem = check_dienophile(given)
+    if problem:
+        return "", f"dienophile_smiles: {problem}"
+    return given, ""
+
+
+def prepare(config: dict, manifest_path, results="results") -> dict:
+    """Read and standardise the library and the reference set once; write the manifest
+    that lists every record, every result file the run needs and, for what is not
+    computed yet, the batches that will compute it."""
+    from . import backends, library
+    write_json, _ = _json()
     config = cfg.validate(config)
     backends.require(config["backend"])
-    st = cfg.structure_settings(config)
+    problem = library.check_dienophile(config["dienophile"])
+    if problem:
+        raise library.LibraryError(f"dienophile {config['dienophile']!r}: {problem}")
     limits = library.Limits(**config["limits"])
-    records = [_record_dict(r, st) for r in library.read_library(config["library"], limits)]
-    reference = [_record_dict(r, st) for r in library.read_library(config["reference"], limits)]
-    structures = {}
+    records = [_record_dict(r, config, config["dienophile"])
+               for r in library.read_library(config["library"], limits)]
+    reference = []
+    for r in library.read_library(config["reference"], limits, what="reference"):
+        smiles, note = _reference_dienophile(r, config)
+        if not smiles:
+            r.fail("invalid_dienophile", note)
+        elif note:
+            r.message = "; ".join(filter(None, [r.message, note]))
+        reference.append(_record_dict(r, config, smiles or config["dienophile"]))
+    structures, dienophiles, transitions = {}, {}, {}
     for rec in records + reference:
+        if rec["status"] != "ok":
+            continue
+        d = rec["dienophile"]
+        dienophiles[d["dhash"]] = d["smiles"]
         for iso in rec["isomers"]:
             structures[iso["key"]] = iso["smiles"]
+            transitions[f"{iso['key']}__{d['thash']}"] = {"key": iso["key"], "dhash": d["dhash"]}
+    per_job = config["jobs"]["structures_per_job"]
+    missing_s = [k for k in sorted(structures) if not structure_path(results, k).is_file()]
+    s_batches = _batches(missing_s, per_job, "structures")
+    producer = {k: bid for bid, members in s_batches.items() for k in members}
+    missing_t = [t for t in sorted(transitions) if not transition_path(results, t).is_file()]
+    t_batches = {bid: {"members": members,
+                       "needs": sorted({producer[transitions[t]["key"]] for t in members
+                                        if transitions[t]["key"] in producer}),
+                       "dienophiles": sorted({transitions[t]["dhash"] for t in members})}
+                 for bid, members in _batches(missing_t, per_job, "transition").items()}
     manifest = {"library": str(config["library"]), "library_sha256": _sha256(config["library"]),
                 "reference": str(config["reference"]), "reference_sha256": _sha256(config["reference"]),
-                "settings": st, "seed": config["seed"], "records": records, "reference_records": reference,
-                "structures": dict(sorted(structures.items()))}
-    pipeline.write_json(manifest, manifest_path)
+                "settings": cfg.structure_settings(config), "seed": config["seed"],
+                "run_dienophile": {"smiles": config["dienophile"],
+                                   "dhash": cfg.dienophile_hash(config, config["dienophile"]),
+                                   "thash": cfg.transition_hash(config, config["dienophile"])},
+                "records": records, "reference_records": reference,
+                "structures": dict(sorted(structures.items())), "dienophiles": dienophiles,
+                "transitions": dict(sorted(transitions.items())),
+                "batches": {"structures": s_batches, "transition": t_batches}}
+    write_json(manifest, manifest_path)
     return manifest
 
 
-def compute(smiles: str, key: str, config: dict, out_path) -> dict:
-    st = cfg.structure_settings(cfg.validate(config))
-    result = pipeline.compute_structure(smiles, st, key=key)
-    pipeline.write_json(result, out_path)
-    return result
+def stale_manifest(manifest_path, results="results") -> str:
+    """Why an existing manifest no longer describes the files ('' when it does): a result
+    file it counts as done has gone (deleted, or moved aside as unreadable)."""
+    import json
+    try:
+        manifest = json.loads(Path(manifest_path).read_text())
+    except (OSError, ValueError):
+        return ""
+    pending = {s for stage in manifest.get("batches", {}).values() for bid, b in stage.items()
+               for s in (b["members"] if isinstance(b, dict) else b)}
+    for key in manifest.get("structures", {}):
+        if key not in pending and not structure_path(results, key).is_file():
+            return f"result {key} is missing"
+    for stem in manifest.get("transitions", {}):
+        if stem not in pending and not transition_path(results, stem).is_file():
+            return f"transition result {stem} is missing"
+    return ""
+
+
+# ------------------------------------------------------------ per structure
+
+def _batch_summary(stage: str, bid: str, done: list[dict], t0: float) -> dict:
+    return {"stage": stage, "batch": bid, "pid": os.getpid(),
+            "threads": os.environ.get("OMP_NUM_THREADS", ""), "members": done,
+            "n_computed": sum(1 for d in done if d["computed"]),
+            "wall_time_s": round(time.perf_counter() - t0, 3)}
+
+
+def compute_structures(config: dict, manifest_path, bid: str, out_path, results="results") -> dict:
+    """Conformer search and s-cis analysis of one batch of structures."""
+    from .pipeline import compute_structure
+    write_json, read_json = _json()
+    t0 = time.perf_counter()
+    config = cfg.validate(config)
+    st = cfg.structure_settings(config)
+    manifest = read_json(manifest_path)
+    done = []
+    for key in manifest["batches"]["structures"][bid]:
+        path = structure_path(results, key)
+        if path.is_file():
+            done.append({"key": key, "computed": False})
+            continue
+        r = compute_structure(manifest["structures"][key], st, key=key)
+        write_json(r, path)
+        done.append({"key": key, "computed": True, "status": r["status"],
+                     "wall_time_s": r.get("wall_time_s"), "n_gradients": r.get("n_gradients")})
+        log.info("structure %s %s: %s in %.1f s, %s gradient calls", key, r["smiles"], r["status"],
+                 r.get("wall_time_s", 0.0), r.get("n_gradients", 0))
+    summary = _batch_summary("structures", bid, done, t0)
+    write_json(summary, out_path)
+    return summary
 
 
 def dienophile(config: dict, smiles: str, out_path) -> dict:
+    from .pipeline import compute_dienophile
+    write_json, _ = _json()
     config = cfg.validate(config)
-    result = pipeline.compute_dienophile(smiles, cfg.structure_settings(config))
-    pipeline.write_json(result, out_path)
+    result = compute_dienophile(smiles, cfg.structure_settings(config))
+    write_json(result, out_path)
     return result
 
 
-def strain(config: dict, structure_path, dienophile_path, out_path) -> dict:
-    from .strain import strain_for_structure
+def compute_transitions(config: dict, manifest_path, bid: str, out_path, results="results") -> dict:
+    """Transition structures of one batch of (structure, dienophile) pairs."""
+    from .pipeline import backend_settings
+    from .transition import transition_states_for_structure
+    write_json, read_json = _json()
+    t0 = time.perf_counter()
     config = cfg.validate(config)
-    st = cfg.structure_settings(config)
-    result = strain_for_structure(pipeline.read_json(structure_path), pipeline.read_json(dienophile_path),
-                                  pipeline.backend_settings(st), config["strain"]["forming_bond_A"])
-    pipeline.write_json(result, out_path)
-    return result
+    bs = backend_settings(cfg.structure_settings(config))
+    manifest = read_json(manifest_path)
+    dph_cache = {}
+    done = []
+    for stem in manifest["batches"]["transition"][bid]["members"]:
+        path = transition_path(results, stem)
+        if path.is_file():
+            done.append({"stem": stem, "computed": False})
+            continue
+        task = manifest["transitions"][stem]
+        if task["dhash"] not in dph_cache:
+            dph_cache[task["dhash"]] = read_json(dienophile_path(results, task["dhash"]))
+        structure = read_json(structure_path(results, task["key"]))
+        r = transition_states_for_structure(structure, dph_cache[task["dhash"]], bs,
+                                            config["transition_state"])
+        r["key"] = task["key"]
+        write_json(r, path)
+        states = {label: s.get("status") for label, s in r["sites"].items()}
+        done.append({"stem": stem, "computed": True, "status": r["status"], "sites": states,
+                     "wall_time_s": r.get("wall_time_s"), "n_gradients": r.get("n_gradients")})
+        log.info("transition %s: %s in %.1f s (%s)", stem, r["status"], r.get("wall_time_s", 0.0),
+                 ", ".join(f"{k} {v}" for k, v in states.items()) or "no site")
+    summary = _batch_summary("transition", bid, done, t0)
+    write_json(summary, out_path)
+    return summary
 
 
-def load_strain(manifest: dict, strain_dir, shash: str) -> dict:
-    out = {}
-    for key in manifest["structures"]:
-        path = Path(strain_dir) / f"{key}__{shash}.json"
+# ----------------------------------------------------------------- ranking
+
+def load_computed(manifest: dict, results="results"):
+    """Every result file the manifest names; a missing or unreadable one becomes a status."""
+    from .ranking import Computed
+    _, read_json = _json()
+
+    def load(path, what):
         try:
-            out[key] = pipeline.read_json(path)
-        except (FileNotFoundError, ValueError):
-            out[key] = {"status": "missing", "sites": {}}
-    return out
-
-
-def load_results(manifest: dict, result_dir) -> dict:
-    """Per-structure results by key; a missing or unreadable file becomes a status."""
-    out = {}
-    for key in manifest["structures"]:
-        path = Path(result_dir) / f"{key}.json"
-        try:
-            out[key] = pipeline.read_json(path)
+            return read_json(path)
         except FileNotFoundError:
-            out[key] = {"status": "missing", "message": f"no result file {path.name}"}
+            return {"status": "missing", "message": f"no {what} file {Path(path).name}", "sites": {}}
         except ValueError as exc:
-            out[key] = {"status": "corrupt_result", "message": f"{path.name} unreadable: {exc}"}
-    return out
+            return {"status": "corrupt_result", "message": f"{Path(path).name} unreadable: {exc}",
+                    "sites": {}}
+
+    structures = {k: load(structure_path(results, k), "result") for k in manifest["structures"]}
+    transitions = {s: load(transition_path(results, s), "transition-structure")
+                   for s in manifest["transitions"]}
+    dienophiles = {}
+    for dhash in manifest["dienophiles"]:
+        d = load(dienophile_path(results, dhash), "dienophile")
+        if "lumo_eV" in d:
+            dienophiles[dhash] = d
+    return Computed(structures, transitions, dienophiles)
 
 
-def _rank_tables(manifest: dict, results: dict, dph: dict, config: dict, st_res):
+def rank_tables(manifest: dict, computed, config: dict):
     """Fit on the reference records, predict every site, pick each row's best:
     (ranking table, sites table, model summary, reference table)."""
-    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], results, dph, config,
-                                                    st_res)
-    sites = ranking.site_table(manifest["records"], results, dph, st_res)
+    from . import ranking
+    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], computed, config,
+                                                    config["dienophile"])
+    sites = ranking.site_table(manifest["records"], computed)
     if len(sites):
-        sites = ranking.predict_sites(sites, fit, config, summary["training_classes"])
-    table = ranking.rank_table(manifest["records"], results, sites)
+        sites = ranking.predict_sites(sites, fit, config, summary)
+    table = ranking.rank_table(manifest["records"], computed, sites)
     return table, sites, summary, ref_table
 
 
-def rank(config: dict, manifest_path, result_dir, dienophile_path, out_dir, strain_dir=None) -> list[str]:
+def rank(config: dict, manifest_path, out_dir, results="results") -> list[str]:
+    from . import outputs
+    _, read_json = _json()
     config = cfg.validate(config)
-    manifest = pipeline.read_json(manifest_path)
-    results = load_results(manifest, result_dir)
-    dph = pipeline.read_json(dienophile_path)
-    st_res = (load_strain(manifest, strain_dir, cfg.strain_hash(config))
-              if config["strain"]["enabled"] and strain_dir else None)
-    table, sites, summary, ref_table = _rank_tables(manifest, results, dph, config, st_res)
+    manifest = read_json(manifest_path)
+    computed = load_computed(manifest, results)
+    table, sites, summary, ref_table = rank_tables(manifest, computed, config)
     out_dir = Path(out_dir)
     outputs.write_table(table, out_dir / "ranking.csv")
     outputs.write_table(sites, out_dir / "sites.csv")
     outputs.write_table(ref_table, out_dir / "reference_fit.csv")
+    run_dph = computed.dienophiles.get(manifest["run_dienophile"]["dhash"], {})
     summary |= {"reference_file": manifest["reference"], "reference_sha256": manifest["reference_sha256"],
                 "library_file": manifest["library"], "library_sha256": manifest["library_sha256"],
                 "seed": manifest["seed"], "settings": manifest["settings"],
-                "dienophile": {k: dph[k] for k in ("smiles", "homo_eV", "lumo_eV")}}
+                "temperature_K": config["temperature_K"], "solvent": config["solvent"],
+                "transition_state": config["transition_state"],
+                "dienophile": {k: run_dph.get(k) for k in ("smiles", "homo_eV", "lumo_eV")}}
     outputs.write_model(summary, out_dir / "model.json")
-    return outputs.summary_lines(table, out_dir)
+    return outputs.summary_lines(table, out_dir, summary)
 
 
 def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
     """Rank config['library'] without Snakemake, one structure after another.
 
-    Per-structure results are read from / written to `cache_dir` when given
-    (same file names as the workflow). `reference_ids`, when given, keeps only
+    Result files are read from / written to `cache_dir` when given (the same
+    layout as the workflow's results/). `reference_ids`, when given, keeps only
     those reference rows in the fit (for leave-out checks). Returns
     (ranking DataFrame, sites DataFrame, model summary dict).
     """
@@ -140,45 +326,35 @@ def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
     config = cfg.validate(config)
     tmp = tempfile.TemporaryDirectory()
     cache = Path(cache_dir) if cache_dir else Path(tmp.name)
-    manifest = prepare(config, cache / "manifest.json")
+    manifest = prepare(config, cache / "manifest.json", results=cache)
     if reference_ids is not None:
         manifest["reference_records"] = [r for r in manifest["reference_records"]
                                          if r["id"] in set(reference_ids)]
-    st = cfg.structure_settings(config)
-    for key, smiles in manifest["structures"].items():
-        path = cache / "structures" / f"{key}.json"
-        if not path.is_file():
-            pipeline.write_json(pipeline.compute_structure(smiles, st, key=key), path)
-    dph_paths = {}
-    for smiles in {config["dienophile"], cfg.strain_dienophile(config)}:
-        dph_paths[smiles] = cache / f"dienophile_{cfg.dienophile_hash(config, smiles)}.json"
-        if not dph_paths[smiles].is_file():
-            dienophile(config, smiles, dph_paths[smiles])
-    st_res = None
-    if config["strain"]["enabled"]:
-        shash = cfg.strain_hash(config)
-        for key in manifest["structures"]:
-            path = cache / "strain" / f"{key}__{shash}.json"
-            if not path.is_file():
-                strain(config, cache / "structures" / f"{key}.json",
-                       dph_paths[cfg.strain_dienophile(config)], path)
-        st_res = load_strain(manifest, cache / "strain", shash)
-    results = load_results(manifest, cache / "structures")
-    dph = pipeline.read_json(dph_paths[config["dienophile"]])
-    table, sites, summary, _ = _rank_tables(manifest, results, dph, config, st_res)
+    for bid in manifest["batches"]["structures"]:
+        compute_structures(config, cache / "manifest.json", bid, batch_path(cache, "structures", bid), cache)
+    for dhash, smiles in manifest["dienophiles"].items():
+        if not dienophile_path(cache, dhash).is_file():
+            dienophile(config, smiles, dienophile_path(cache, dhash))
+    for bid in manifest["batches"]["transition"]:
+        compute_transitions(config, cache / "manifest.json", bid, batch_path(cache, "transition", bid), cache)
+    computed = load_computed(manifest, cache)
+    table, sites, summary, _ = rank_tables(manifest, computed, config)
     tmp.cleanup()
     return table, sites, summary
 
 
+# ------------------------------------------------------------------ report
+
 def profiles_for_report(table, results: dict, config: dict, cache_dir, n: int = 3) -> list:
     """Relaxed torsion profiles (15 deg steps) of the top and bottom ranked dienes
-    whose best site can rotate; cached per structure and site."""
+    whose best site rotates freely (acyclic): ring-bound sites have no profile."""
     import numpy as np
     from .backends import Molecule
+    from .pipeline import backend_settings
     from .torsion import torsion_profile
+    write_json, read_json = _json()
     st = cfg.structure_settings(config)
-    ranked = table[table["rank"].notna() & table["site_kind"].isin(["acyclic", "ring_other"])]
-    ranked = ranked.sort_values("rank")
+    ranked = table[table["rank"].notna() & (table["site_kind"] == "acyclic")].sort_values("rank")
     picks = list(ranked.head(n).itertuples()) + [r for r in ranked.tail(n).itertuples()
                                                  if r.rank not in set(ranked.head(n)["rank"])]
     out = []
@@ -186,40 +362,37 @@ def profiles_for_report(table, results: dict, config: dict, cache_dir, n: int = 
         res = results[r.structure_key]
         path = Path(cache_dir) / f"{r.structure_key}__{r.best_site}.json"
         if path.is_file():
-            prof = pipeline.read_json(path)
+            prof = read_json(path)
         else:
             atoms = [int(x) - 1 for x in str(r.best_site).split("-")]
             geo = res["geometry"]
             start = geo["planar_s_cis_A"].get(r.best_site, geo["minimum_A"])
             a, e = torsion_profile(geo["numbers"], np.asarray(start),
-                                   Molecule(geo["numbers"], pipeline.backend_settings(st)), atoms,
-                                   step_deg=15.0)
+                                   Molecule(geo["numbers"], backend_settings(st)), atoms, step_deg=15.0)
             prof = {"dihedral_deg": a.tolist(), "energy_kJmol": np.round(e, 3).tolist()}
-            pipeline.write_json(prof, path)
+            write_json(prof, path)
         out.append((f"#{int(r.rank)} {r.id}", np.array(prof["dihedral_deg"]), np.array(prof["energy_kJmol"])))
     return out
 
 
-def report(config: dict, manifest_path, out_dir) -> dict:
+def report(config: dict, manifest_path, out_dir, results="results") -> dict:
     """report.html and dienes.sdf from a finished ranking."""
     import pandas as pd
+    from . import outputs
     from . import report as rpt
+    _, read_json = _json()
     config = cfg.validate(config)
     out_dir = Path(out_dir)
-    manifest = pipeline.read_json(manifest_path)
-    results = load_results(manifest, out_dir / "structures")
-    table = pd.read_csv(out_dir / "ranking.csv", dtype={"id": str, "smiles": str, "message": str},
-                        keep_default_na=False, na_values=[""])
-    table["id"] = table["id"].fillna("").map(lambda s: s[1:] if s.startswith("'") else s)
-    table["smiles"] = table["smiles"].fillna("")
-    table["message"] = table["message"].fillna("")
+    manifest = read_json(manifest_path)
+    computed = load_computed(manifest, results)
+    table = outputs.read_table(out_dir / "ranking.csv")
     sites = pd.read_csv(out_dir / "sites.csv") if (out_dir / "sites.csv").stat().st_size > 1 else pd.DataFrame()
     reference = pd.read_csv(out_dir / "reference_fit.csv")
-    model = pipeline.read_json(out_dir / "model.json")
-    profiles = profiles_for_report(table, results, config, out_dir / "profiles")
-    versions = next((r.get("versions") for r in results.values() if r.get("versions")), {})
+    model = read_json(out_dir / "model.json")
+    profiles = profiles_for_report(table, computed.structures, config, out_dir / "profiles")
+    versions = next((r.get("versions") for r in computed.structures.values() if r.get("versions")), {})
     text = rpt.build(table, sites, model, reference, manifest["settings"] | {"seed": manifest["seed"]},
-                     versions, profiles, config["dienophile"])
+                     versions, profiles, config)
     rpt.write(out_dir / "report.html", text)
-    n_sdf = outputs.write_sdf(table, results, out_dir / "dienes.sdf")
+    n_sdf = outputs.write_sdf(table, computed, out_dir / "dienes.sdf")
     return {"report": str(out_dir / "report.html"), "sdf": str(out_dir / "dienes.sdf"), "sdf_records": n_sdf}

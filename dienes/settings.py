@@ -13,7 +13,7 @@ from jsonschema import Draft202012Validator, validators
 
 # Bump when a change in the science changes per-structure numbers: old result
 # files then stop matching and are recomputed.
-SCIENCE_VERSION = 1
+SCIENCE_VERSION = 2
 
 SCHEMA_PATH = Path(__file__).resolve().parent.parent / "config" / "schema.yaml"
 
@@ -73,19 +73,20 @@ def structure_key(inchikey: str, settings: dict) -> str:
     return f"{inchikey}_{settings_hash(settings)}"
 
 
-ETHYLENE = "C=C"
+def canonical_smiles(smiles: str) -> str:
+    """RDKit canonical SMILES (the input unchanged when it does not parse)."""
+    from rdkit import Chem
+    mol = Chem.MolFromSmiles(smiles)
+    return Chem.MolToSmiles(mol) if mol is not None else smiles
 
 
 def dienophile_hash(config: dict, smiles: str) -> str:
     """Names the result file of one dienophile under the per-structure settings."""
-    return settings_hash(structure_settings(config) | {"dienophile": smiles})
+    return settings_hash(structure_settings(config) | {"dienophile": canonical_smiles(smiles)})
 
 
-def strain_dienophile(config: dict) -> str:
-    return ETHYLENE if config["strain"]["dienophile"] == "ethylene" else config["dienophile"]
-
-
-def strain_hash(config: dict) -> str:
-    """Names strain result files: settings, strain dienophile and strain options."""
-    return settings_hash(structure_settings(config) | {"strain": config["strain"],
-                                                       "strain_dienophile": strain_dienophile(config)})
+def transition_hash(config: dict, dienophile_smiles: str) -> str:
+    """Names transition-structure result files: per-structure settings, the
+    transition-state settings and the dienophile."""
+    return settings_hash(structure_settings(config) | {"transition_state": config["transition_state"],
+                                                       "dienophile": canonical_smiles(dienophile_smiles)})

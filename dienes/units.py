@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 BOHR_ANGSTROM = 0.529177210903          # 1 Bohr in Angstrom
 HARTREE_EV = 27.211386245988            # 1 Hartree in eV
 HARTREE_KJMOL = 2625.4996394799         # 1 Hartree in kJ/mol
@@ -18,6 +20,9 @@ KCALMOL_KJMOL = 4.184                   # thermochemical calorie
 GAS_CONSTANT_KJMOL_K = 8.314462618e-3   # R in kJ/(mol K)
 BOLTZMANN_J_K = 1.380649e-23            # kB in J/K
 PLANCK_J_S = 6.62607015e-34             # h in J s
+ELECTRONVOLT_J = 1.602176634e-19        # 1 eV in J
+ATOMIC_MASS_KG = 1.66053906660e-27      # 1 Dalton (amu) in kg
+SPEED_OF_LIGHT_CM_S = 2.99792458e10     # c in cm/s
 
 
 def angstrom_to_bohr(x_angstrom):
@@ -43,6 +48,17 @@ def hartree_to_ev(e_hartree):
 def gradient_to_forces_ev_angstrom(gradient_hartree_bohr):
     """Energy gradient (Hartree/Bohr) -> forces (eV/Angstrom), sign flipped."""
     return -gradient_hartree_bohr * HARTREE_EV / BOHR_ANGSTROM
+
+
+def hessian_eigenvalue_to_wavenumber_cm1(eigenvalues_eV_A2_amu):
+    """Mass-weighted Hessian eigenvalues (eV / (Angstrom^2 amu)) -> harmonic
+    wavenumbers (cm^-1); a negative eigenvalue gives a negative (imaginary) wavenumber.
+
+    nu = sqrt(lambda) / (2 pi c); 1 eV/(A^2 amu) is 521.47 cm^-1 squared.
+    """
+    lam = np.asarray(eigenvalues_eV_A2_amu, dtype=float)
+    omega_s = np.sqrt(np.abs(lam) * ELECTRONVOLT_J / (1e-20 * ATOMIC_MASS_KG))
+    return np.sign(lam) * omega_s / (2.0 * math.pi * SPEED_OF_LIGHT_CM_S)
 
 
 def rt_kjmol(temperature_K: float) -> float:

@@ -14,9 +14,9 @@ from .conftest import REPO
 from .test_workflow import _ranking, _setup, _snakemake
 
 DATA = Path(__file__).parent / "data"
-STATUSES = {"ok", "invalid_smiles", "empty_smiles", "invalid_structure", "no_diene",
+STATUSES = {"ok", "invalid_smiles", "empty_smiles", "unreadable_sdf_record", "no_diene",
             "unsupported_element", "metal_complex", "radical", "charged", "too_large",
-            "too_flexible", "unreadable_structure"}
+            "too_flexible", "processing_error"}
 
 
 def corpus():

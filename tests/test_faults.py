@@ -45,7 +45,7 @@ def test_scf_failure_everywhere_gives_a_status(monkeypatch, structure_settings):
     monkeypatch.setattr(_FlakySession, "fail_below_K", 1e9)
     monkeypatch.setitem(backends._SESSIONS, "xtb-python", _FlakySession)
     r = compute_structure("C=CC=C", structure_settings)
-    assert r["status"] == "xtb_failed"
+    assert r["status"] == "scf_failed"
     assert "SCF did not converge" in r["message"]
 
 

@@ -28,20 +28,53 @@ def test_physics_variant_fixes_the_penalty_slope():
     X, y = synthetic()
     f = mdl.fit(X, y, FEATURES, "physics", 303.15)
     assert f.coef_per_unit[0] == pytest.approx(-log10_units_per_kjmol(303.15), rel=1e-12)
-    assert f.coef_se[0] == 0.0
+    assert f.coef_se[0] is None and f.fixed_feature == "scis_penalty_kJmol"
+
+
+def test_physics_variant_fixes_the_barrier_slope_before_the_penalty():
+    # transition-state theory: log10 k = const - dG / (RT ln 10) (Eyring; common practice)
+    rng = np.random.default_rng(5)
+    barrier = rng.uniform(40, 90, 30)
+    y = 13.0 - barrier * log10_units_per_kjmol(298.15) + rng.normal(0, 0.05, 30)
+    X = np.column_stack([barrier, rng.uniform(0, 10, 30)])
+    f = mdl.fit(X, y, ["barrier_kJmol", "scis_penalty_kJmol"], "physics", 298.15)
+    assert f.fixed_feature == "barrier_kJmol"
+    assert f.coef_per_unit[1] == pytest.approx(0.0, abs=0.02)
 
 
 def test_interval_covers_and_domain_flags_extrapolation():
     X, y = synthetic(noise=0.3, n=60, seed=3)
     f = mdl.fit(X, y, FEATURES, "ols", 298.15)
     Xt, yt = synthetic(noise=0.3, n=400, seed=4)
-    pred, lo, hi, lev, dom = mdl.predict(f, Xt, 0.9)
+    pred, lo, hi = mdl.predict(f, Xt, 0.9)
     coverage = np.mean((yt >= lo) & (yt <= hi))
-    assert 0.85 <= coverage <= 0.95
-    assert dom.all()
+    assert 0.85 <= coverage <= 0.95        # a 90 % interval covers about 90 % of new points
+    _, dom, _ = mdl.domain(f, Xt)
+    assert dom.mean() > 0.9                # points drawn like the training set lie inside
     far = mdl.predict(f, np.array([[80.0, -6.0]]), 0.9)
-    assert not far[4][0]
     assert far[2][0] - far[1][0] > hi[0] - lo[0]
+    _, inside, why = mdl.domain(f, np.array([[80.0, -6.0]]))
+    assert not inside[0] and any("scis_penalty_kJmol" in w for w in why[0])
+
+
+def test_domain_includes_the_fixed_slope_descriptor():
+    # a penalty far beyond the reference range is an extrapolation even when its
+    # coefficient is fixed (and so carries no fitted uncertainty)
+    X, y = synthetic(noise=0.2, n=40, seed=8)
+    f = mdl.fit(X, y, FEATURES, "physics", 298.15)
+    _, inside, why = mdl.domain(f, np.array([[105.0, -10.0]]))
+    assert not inside[0] and "scis_penalty_kJmol" in why[0][0]
+
+
+def test_forward_selection_adds_only_a_helpful_feature():
+    rng = np.random.default_rng(2)
+    n = 30
+    table = {"a": rng.normal(size=n), "b": rng.normal(size=n), "noise": rng.normal(size=n)}
+    y = 1.0 * table["a"] + 0.8 * table["b"] + rng.normal(0, 0.1, n)
+    feats, trail = mdl.choose_features(table, y, ["a"], ["b", "noise"], 298.15, max_added=2)
+    assert feats == ["a", "b"]             # the noise column never lowers LOO RMSE by 5 %
+    honest = mdl.nested_cv(table, y, ["a"], ["b", "noise"], 298.15, max_added=2)
+    assert honest["cv_rmse_log10k"] < 0.2
 
 
 def test_loo_selection_and_metrics():

@@ -1,36 +1,39 @@
-# Shared helpers: config validation and the manifest lookups.
+# Shared helpers: config validation, start-up checks and the manifest lookups.
 import json
+import sys
 from pathlib import Path
 
 import dienes
 from dienes import runlock
+from dienes import run as dienes_run
 from dienes import settings as dienes_settings
+from dienes.library import check_dienophile
 
 config.update(dienes_settings.validate(config))
+_problem = check_dienophile(config["dienophile"])
+if _problem:
+    sys.exit(f"dienes: dienophile {config['dienophile']!r}: {_problem}")
+
+MANIFEST = "results/manifest.json"
 if workflow.is_main_process:
     runlock.claim()
-    # before Snakemake looks at the files: an unreadable result is moved aside and recomputed
-    if runlock.quarantine_invalid(sorted(Path("results").glob("structures/*.json"))
-                                  + sorted(Path("results").glob("strain/*.json"))):
-        Path("results/ranking.csv").unlink(missing_ok=True)  # so the ranking is redone with it
+    # before Snakemake looks at the files: an unreadable result is moved aside, and a
+    # manifest that counts a missing result as done is dropped, so both are computed again
+    moved = runlock.quarantine_invalid(sorted(Path("results").glob("structures/*.json"))
+                                       + sorted(Path("results").glob("transition/*.json")))
+    _stale = dienes_run.stale_manifest(MANIFEST)
+    if moved or _stale:
+        Path(MANIFEST).unlink(missing_ok=True)
+        Path("results/ranking.csv").unlink(missing_ok=True)
 
-# dienophile result files, by hash: the run's dienophile and the model-TS partner
-DIENOPHILES = {
-    dienes_settings.dienophile_hash(config, smi): smi
-    for smi in {config["dienophile"], dienes_settings.strain_dienophile(config)}
-}
-RUN_DIENOPHILE = dienes_settings.dienophile_hash(config, config["dienophile"])
-STRAIN_DIENOPHILE = dienes_settings.dienophile_hash(config, dienes_settings.strain_dienophile(config))
-STRAIN_HASH = dienes_settings.strain_hash(config)
 # any config change reruns the cheap whole-run steps (prepare, rank); per-structure
 # results are named by their own settings hash and are reused
 CONFIG_HASH = dienes_settings.settings_hash(config | {"version": dienes.__version__})
 
 
 wildcard_constraints:
-    key=r"[A-Z]{14}-[A-Z]{10}-[A-Z]_[0-9a-f]{10}",
+    bid=r"[0-9a-f]{12}",
     dhash=r"[0-9a-f]{10}",
-    shash=r"[0-9a-f]{10}",
 
 
 def manifest():
@@ -42,19 +45,31 @@ def manifest():
     return cache[path]
 
 
-def get_compute_params(wildcards):
-    return manifest()["structures"][wildcards.key]
+def batch_flag(stage, bid):
+    return f"results/batches/{stage}/{bid}.json"
 
 
-def get_dienophile_params(wildcards):
-    return DIENOPHILES[wildcards.dhash]
+def get_dienophile_smiles(wildcards):
+    return manifest()["dienophiles"][wildcards.dhash]
+
+
+def get_transition_input(wildcards):
+    batch = manifest()["batches"]["transition"][wildcards.bid]
+    return ([batch_flag("structures", b) for b in batch["needs"]]
+            + [f"results/dienophiles/{d}.json" for d in batch["dienophiles"]])
+
+
+def batch_runtime(stage, minutes_each):
+    """Cluster runtime (minutes) of a batch job: minutes_each per member, at least 10."""
+    def runtime(wildcards):
+        batch = manifest()["batches"][stage][wildcards.bid]
+        members = batch["members"] if isinstance(batch, dict) else batch
+        return max(10, minutes_each * len(members))
+    return runtime
 
 
 def get_rank_input(wildcards):
-    return [f"results/structures/{key}.json" for key in manifest()["structures"]]
-
-
-def get_rank_strain_input(wildcards):
-    if not config["strain"]["enabled"]:
-        return []
-    return [f"results/strain/{key}__{STRAIN_HASH}.json" for key in manifest()["structures"]]
+    m = manifest()
+    return ([batch_flag("structures", b) for b in m["batches"]["structures"]]
+            + [batch_flag("transition", b) for b in m["batches"]["transition"]]
+            + [f"results/dienophiles/{d}.json" for d in m["dienophiles"]])

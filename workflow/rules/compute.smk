@@ -1,47 +1,53 @@
-rule compute_structure:
+# Per-structure work, cut into batches by the prepare step: each job computes the
+# members of its batch whose result file is absent and writes a summary.
+
+
+rule compute_structures:
+    input:
+        manifest=ancient(MANIFEST),
     output:
-        "results/structures/{key}.json",
-    params:
-        smiles=get_compute_params,
+        batch_flag("structures", "{bid}"),
     conda:
         "../envs/dienes.yaml"
     log:
-        "logs/structures/{key}.log",
+        "logs/structures/{bid}.log",
     threads: 1
     resources:
-        mem_mb=1000,
-        runtime=60,
+        mem_mb=1500,
+        runtime=batch_runtime("structures", 3),
     script:
-        "../scripts/compute_structure.py"
+        "../scripts/compute_structures.py"
 
 
 rule compute_dienophile:
+    input:
+        manifest=ancient(MANIFEST),
     output:
-        "results/dienophile_{dhash}.json",
+        "results/dienophiles/{dhash}.json",
     params:
-        smiles=get_dienophile_params,
+        smiles=get_dienophile_smiles,
     conda:
         "../envs/dienes.yaml"
     log:
-        "logs/dienophile_{dhash}.log",
+        "logs/dienophiles/{dhash}.log",
     threads: 1
     script:
         "../scripts/compute_dienophile.py"
 
 
-rule compute_strain:
+rule compute_transitions:
     input:
-        structure="results/structures/{key}.json",
-        dienophile=f"results/dienophile_{STRAIN_DIENOPHILE}.json",
+        manifest=ancient(MANIFEST),
+        needs=get_transition_input,
     output:
-        "results/strain/{key}__{shash}.json",
+        batch_flag("transition", "{bid}"),
     conda:
         "../envs/dienes.yaml"
     log:
-        "logs/strain/{key}__{shash}.log",
+        "logs/transition/{bid}.log",
     threads: 1
     resources:
-        mem_mb=1000,
-        runtime=60,
+        mem_mb=1500,
+        runtime=batch_runtime("transition", 5),
     script:
-        "../scripts/compute_strain.py"
+        "../scripts/compute_transitions.py"

@@ -5,7 +5,7 @@ checkpoint prepare:
     params:
         config_hash=CONFIG_HASH,
     output:
-        manifest="results/manifest.json",
+        manifest=MANIFEST,
     conda:
         "../envs/dienes.yaml"
     log:

@@ -1,9 +1,7 @@
 rule rank:
     input:
-        manifest="results/manifest.json",
-        structures=get_rank_input,
-        strain=get_rank_strain_input,
-        dienophile=f"results/dienophile_{RUN_DIENOPHILE}.json",
+        manifest=MANIFEST,
+        computed=get_rank_input,
     params:
         config_hash=CONFIG_HASH,
     output:
@@ -21,7 +19,7 @@ rule rank:
 
 rule report:
     input:
-        manifest="results/manifest.json",
+        manifest=MANIFEST,
         ranking="results/ranking.csv",
         sites="results/sites.csv",
         model="results/model.json",

@@ -1,17 +1,18 @@
 import sys
 
 from _log import setup
-from dienes.backends import BackendError
-from dienes.library import LibraryError
-from dienes.run import prepare
 
-log = setup(snakemake.log[0])
+log = setup(snakemake)
+from dienes.backends import BackendError  # noqa: E402
+from dienes.library import LibraryError  # noqa: E402
+from dienes.run import prepare  # noqa: E402
+
 try:
     m = prepare(dict(snakemake.config), snakemake.output.manifest)
-except LibraryError as exc:
-    log.error("cannot read the library: %s", exc)
-    sys.exit(1)
-except BackendError as exc:
+except (LibraryError, BackendError) as exc:
     log.error("%s", exc)
     sys.exit(1)
-log.info("library %s: %d rows, %d structures to compute", m["library"], len(m["records"]), len(m["structures"]))
+log.info("library %s: %d rows; %d structures (%d to compute), %d transition-structure pairs (%d to compute)",
+         m["library"], len(m["records"]), len(m["structures"]),
+         sum(len(b) for b in m["batches"]["structures"].values()), len(m["transitions"]),
+         sum(len(b["members"]) for b in m["batches"]["transition"].values()))

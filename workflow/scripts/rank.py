@@ -1,11 +1,9 @@
 from pathlib import Path
 
 from _log import setup
-from dienes.run import rank
 
-log = setup(snakemake.log[0])
-out = Path(snakemake.output.ranking).parent
-lines = rank(dict(snakemake.config), snakemake.input.manifest, out / "structures",
-             snakemake.input.dienophile, out, strain_dir=out / "strain")
-for line in lines:
+log = setup(snakemake)
+from dienes.run import rank  # noqa: E402
+
+for line in rank(dict(snakemake.config), snakemake.input.manifest, Path(snakemake.output.ranking).parent):
     log.info("%s", line)

@@ -1,8 +1,9 @@
 from pathlib import Path
 
 from _log import setup
-from dienes.run import report
 
-log = setup(snakemake.log[0])
+log = setup(snakemake)
+from dienes.run import report  # noqa: E402
+
 out = report(dict(snakemake.config), snakemake.input.manifest, Path(snakemake.output.report).parent)
 log.info("report: %s; 3D structures: %s (%d records)", out["report"], out["sdf"], out["sdf_records"])

@@ -1,32 +1,77 @@
 """The `dienes` console command.
 
-    dienes rank LIBRARY [--dienophile SMILES] [--cores N] [--workdir DIR] [--set KEY=VALUE ...]
-    dienes look SMILES [--dienophile SMILES] [--backend NAME]
+    dienes rank LIBRARY [--dienophile SMILES] [--cores N] [--refine N] [--workdir DIR] [--set KEY=VALUE ...]
+    dienes look SMILES [--dienophile SMILES] [--backend NAME] [--no-ts] [--no-profile]
 
 `rank` runs the Snakemake workflow for the everyday case and prints the top
 of the ranking; `look` analyses one SMILES on the spot (sites, penalty,
-frontier orbitals, a text torsion profile) without a workflow run.
+frontier orbitals, transition structure, a text torsion profile) without a
+workflow run.
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import re
 import subprocess
 import sys
 from pathlib import Path
 
-REPO = Path(__file__).resolve().parent.parent
+from . import __version__
+from .paths import workflow_root
+
+REPO = workflow_root()
 BAR_WIDTH = 40
+
+RANK_EXAMPLES = """examples:
+  dienes rank my_dienes.csv
+  dienes rank my_dienes.csv --dienophile 'C=CC(=O)OC' --cores 8
+  dienes rank catalogue.sdf --refine 10 --workdir runs/catalogue
+  dienes rank my_dienes.smi --set temperature_K=313.15 --set solvent=toluene
+
+Library: CSV with columns id and smiles (.csv/.tsv), .smi (SMILES then id) or .sdf.
+Results go to WORKDIR/results (ranking.csv, report.html, dienes.sdf, model.json);
+a rerun in the same WORKDIR computes only what is new."""
+
+LOOK_EXAMPLES = """examples:
+  dienes look 'C=CC(C)=C'
+  dienes look 'C1=CCC=C1' --dienophile 'N#CC(C#N)=C(C#N)C#N'
+  dienes look 'CO/C=C/C=C' --no-ts"""
+
+
+def _fail(message: str, code: int = 2) -> int:
+    print(f"dienes: {message}", file=sys.stderr)
+    return code
+
+
+def failed_logs(workdir: Path) -> list[str]:
+    """The job logs Snakemake named for the failed jobs of its latest run."""
+    logs = sorted((workdir / ".snakemake" / "log").glob("*.snakemake.log"), key=lambda p: p.stat().st_mtime)
+    if not logs:
+        return []
+    text = logs[-1].read_text(errors="replace")
+    out = []
+    for block in re.split(r"\n(?=Error in rule )", text)[1:]:
+        m = re.search(r"^\s+log: (\S+)", block, re.M)
+        rule = block.split(":", 1)[0].replace("Error in rule ", "")
+        if m:
+            out.append(f"{rule}: {workdir / m.group(1)}")
+    return out
 
 
 def _rank(args) -> int:
-    import pandas as pd
-    from .outputs import summary_lines
+    from .library import EXTENSIONS, check_dienophile
     library = Path(args.library).resolve()
     if not library.is_file():
-        print(f"dienes: {args.library}: no such file", file=sys.stderr)
-        return 2
+        return _fail(f"{args.library}: no such file")
+    if library.suffix.lower() not in EXTENSIONS:
+        return _fail(f"{args.library}: unknown file type {library.suffix or '(no extension)'!r}; "
+                     "name it .csv (columns id, smiles), .smi or .sdf")
+    if args.dienophile:
+        problem = check_dienophile(args.dienophile)
+        if problem:
+            return _fail(f"dienophile {args.dienophile!r}: {problem}")
     workdir = Path(args.workdir).resolve()
     workdir.mkdir(parents=True, exist_ok=True)
     local_config = workdir / "config" / "config.yaml"
@@ -36,6 +81,8 @@ def _rank(args) -> int:
         overrides.append(f"reference={REPO / 'config' / 'reference_rates.csv'}")
     if args.dienophile:
         overrides.append(f"dienophile={args.dienophile}")
+    if args.refine is not None:
+        overrides.append(f"refine={{top: {int(args.refine)}}}")
     overrides += args.set or []
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
@@ -45,14 +92,20 @@ def _rank(args) -> int:
         cmd += ["--quiet", "all"]
     env = dict(os.environ, OMP_NUM_THREADS=os.environ.get("OMP_NUM_THREADS", "1"))
     rc = subprocess.run(cmd, env=env).returncode
+    if rc != 0:
+        logs = failed_logs(workdir)
+        where = ("; see " + "; ".join(logs)) if logs else f"; see the Snakemake output above and {workdir / 'logs'}"
+        return _fail(f"the workflow stopped (exit {rc}){where}", rc)
     ranking = workdir / "results" / "ranking.csv"
-    if rc == 0 and ranking.is_file():
-        table = pd.read_csv(ranking, dtype={"id": str}, keep_default_na=False, na_values=[""])
+    if ranking.is_file():
+        import json
+
+        from .outputs import read_table, summary_lines
+        summary = json.loads((workdir / "results" / "model.json").read_text())
         print()
-        for line in summary_lines(table, workdir / "results", top=args.top):
+        for line in summary_lines(read_table(ranking), workdir / "results", summary, top=args.top):
             print(line)
-        print(f"report: {workdir / 'results' / 'report.html'}")
-    return rc
+    return 0
 
 
 def text_profile(angles, energies) -> list[str]:
@@ -64,9 +117,10 @@ def text_profile(angles, energies) -> list[str]:
 
 def _look(args) -> int:
     import numpy as np
+
     from . import settings as cfg
     from .backends import Molecule
-    from .library import Limits, prepare_record
+    from .library import Limits, check_dienophile, prepare_record
     from .orbitals import demand
     from .pipeline import backend_settings, compute_dienophile, compute_structure
     from .torsion import torsion_profile
@@ -74,14 +128,18 @@ def _look(args) -> int:
     if args.backend:
         config["backend"] = args.backend
     st = cfg.structure_settings(config)
+    dph_smiles = args.dienophile or config["dienophile"]
+    problem = check_dienophile(dph_smiles)
+    if problem:
+        return _fail(f"dienophile {dph_smiles!r}: {problem}")
     rec = prepare_record(1, "look", args.smiles, {}, Limits(**config["limits"]))
     if rec.status != "ok":
-        print(f"{args.smiles}: {rec.status}: {rec.message}")
-        return 1
+        return _fail(f"{args.smiles}: {rec.status}: {rec.message}", 1)
     if rec.message:
         print(f"note: {rec.message}")
-    dph = compute_dienophile(args.dienophile or config["dienophile"], st)
-    print(f"dienophile {dph['smiles']}: HOMO {dph['homo_eV']:.2f} eV, LUMO {dph['lumo_eV']:.2f} eV")
+    dph = compute_dienophile(dph_smiles, st)
+    print(f"dienophile {dph['smiles']}: HOMO {dph['homo_eV']:.2f} eV, LUMO {dph['lumo_eV']:.2f} eV "
+          "(GFN2-xTB orbital energies: model features, not ionisation energies)")
     for iso in rec.isomers:
         res = compute_structure(iso.smiles, st)
         print(f"\n{iso.smiles}  ({res['status']}{': ' + res['message'] if res['message'] else ''})")
@@ -96,9 +154,24 @@ def _look(args) -> int:
             print(f"  site {s['label']:<12} {s['kind']:<11} s-cis penalty {pen:<16} "
                   f"reactive fraction {s['reactive_fraction']:.3f}  HOMO {s['homo_eV']:.2f} eV  "
                   f"LUMO {s['lumo_eV']:.2f} eV  {kind} demand (gap {min(normal, inverse):.2f} eV)")
-            if s["status"] == "ok" and s["kind"] != "ring_s_cis" and best is None:
+            if s["status"] == "ok" and s["kind"] == "acyclic" and best is None:
                 best = s
-        if best is not None and not args.no_profile:
+        if res["status"] == "ok" and not args.no_ts:
+            from .transition import transition_states_for_structure
+            ts = transition_states_for_structure(res, dph, backend_settings(st), config["transition_state"])
+            print(f"  transition structures with {dph['smiles']} ({ts.get('wall_time_s', 0):.0f} s; "
+                  "GFN2-xTB barriers are far too low in value and serve for ordering):")
+            for label, t in ts["sites"].items():
+                if t.get("status") == "ok":
+                    print(f"    site {label:<12} barrier {t['barrier_kJmol']:7.1f} kJ/mol from the diene's "
+                          f"minimum ({t['approach']}; imaginary mode {t['ts_imag_cm1']:.0f} cm-1; "
+                          f"reaction energy {t['reaction_energy_kJmol']:.0f} kJ/mol)")
+                else:
+                    print(f"    site {label:<12} {t.get('status')}: {t.get('message', '')}")
+        if best is None:
+            if res["status"] == "ok" and not args.no_profile:
+                print("  no torsion profile: every site is held by a ring")
+        elif not args.no_profile:
             geo = res["geometry"]
             a, e = torsion_profile(geo["numbers"], np.asarray(geo["planar_s_cis_A"][best["label"]]),
                                    Molecule(geo["numbers"], backend_settings(st)), best["atoms"],
@@ -109,25 +182,47 @@ def _look(args) -> int:
 
 
 def main(argv=None) -> int:
-    ap = argparse.ArgumentParser(prog="dienes", description="Rank dienes by predicted Diels-Alder reactivity.")
+    fmt = argparse.ArgumentDefaultsHelpFormatter
+    ap = argparse.ArgumentParser(prog="dienes", formatter_class=fmt,
+                                 description="Rank conjugated dienes by predicted Diels-Alder reactivity.")
+    ap.add_argument("--version", action="version", version=f"dienes {__version__}")
     sub = ap.add_subparsers(dest="command", required=True)
-    r = sub.add_parser("rank", help="rank a library (CSV with id,smiles; .smi; .sdf) with the workflow")
-    r.add_argument("library")
-    r.add_argument("--dienophile", help="dienophile SMILES (default: the config's, maleic anhydride)")
-    r.add_argument("--cores", type=int, default=os.cpu_count() or 1)
-    r.add_argument("--workdir", default=".", help="where results/ and logs/ go (default: here)")
-    r.add_argument("--set", action="append", metavar="KEY=VALUE", help="any other config value")
+
+    class RankFormatter(argparse.ArgumentDefaultsHelpFormatter, argparse.RawDescriptionHelpFormatter):
+        pass
+
+    r = sub.add_parser("rank", formatter_class=RankFormatter, epilog=RANK_EXAMPLES,
+                       help="rank a library with the workflow (CSV id,smiles; .smi; .sdf)",
+                       description="Rank a diene library with the Snakemake workflow and print the top.")
+    r.add_argument("library", help="the diene library file")
+    r.add_argument("--dienophile", help="dienophile SMILES (C=C or C#C; default: the config's, maleic anhydride)")
+    r.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use")
+    r.add_argument("--refine", type=int, metavar="N",
+                   help="refine the N best dienes (and the reference set) with a density-functional "
+                        "single point; several minutes per diene (default: the config's refine.top, 0)")
+    r.add_argument("--workdir", default=".", help="where results/ and logs/ go")
+    r.add_argument("--set", action="append", metavar="KEY=VALUE",
+                   help="any other config value, e.g. temperature_K=313.15 (repeatable)")
     r.add_argument("--top", type=int, default=15, help="how many ranked rows to print")
     r.add_argument("--quiet", action="store_true", help="less Snakemake output")
     r.set_defaults(func=_rank)
-    lk = sub.add_parser("look", help="analyse one SMILES now, without a workflow run")
-    lk.add_argument("smiles")
-    lk.add_argument("--dienophile")
-    lk.add_argument("--backend", choices=["xtb-python", "tblite"])
+    lk = sub.add_parser("look", formatter_class=RankFormatter, epilog=LOOK_EXAMPLES,
+                        help="analyse one SMILES now, without a workflow run",
+                        description="Sites, s-cis penalty, frontier orbitals, transition structure and "
+                                    "torsion profile of one diene, computed on the spot.")
+    lk.add_argument("smiles", help="the diene SMILES")
+    lk.add_argument("--dienophile", help="dienophile SMILES (default: the config's, maleic anhydride)")
+    lk.add_argument("--backend", choices=["xtb-python", "tblite"], help="GFN2-xTB backend (default: the config's)")
+    lk.add_argument("--no-ts", action="store_true", help="skip the transition-structure search")
     lk.add_argument("--no-profile", action="store_true", help="skip the torsion profile")
     lk.set_defaults(func=_look)
     args = ap.parse_args(argv)
-    return args.func(args)
+    try:
+        return args.func(args)
+    except KeyboardInterrupt:
+        return _fail("interrupted", 130)
+    except Exception as exc:  # noqa: BLE001 - the console prints one line, not a traceback
+        return _fail(f"{type(exc).__name__}: {exc}", 1)
 
 
 if __name__ == "__main__":

@@ -234,16 +234,16 @@ def standardise(mol: Chem.Mol) -> tuple[Chem.Mol, list[str]]:
     return Chem.MolFromSmiles(Chem.MolToSmiles(mol)), notes
 
 
-def _diene_bonds(mol: Chem.Mol) -> set[int]:
+def _diene_bonds(mol: Chem.Mol, sites=None) -> set[int]:
     bonds = set()
-    for site in find_sites(mol):
+    for site in find_sites(mol) if sites is None else sites:
         a1, a2, a3, a4 = site.atoms
         bonds.add(mol.GetBondBetweenAtoms(a1, a2).GetIdx())
         bonds.add(mol.GetBondBetweenAtoms(a3, a4).GetIdx())
     return bonds
 
 
-def enumerate_diene_stereo(mol: Chem.Mol) -> tuple[list[Chem.Mol], list[str]]:
+def enumerate_diene_stereo(mol: Chem.Mol, sites=None) -> tuple[list[Chem.Mol], list[str]]:
     """Fully specified isomers of `mol`.
 
     Unspecified E/Z on a diene double bond is enumerated (each isomer is
@@ -251,7 +251,7 @@ def enumerate_diene_stereo(mol: Chem.Mol) -> tuple[list[Chem.Mol], list[str]]:
     double bonds) is fixed to the first isomer RDKit enumerates, and said so.
     """
     notes = []
-    diene_bonds = _diene_bonds(mol)
+    diene_bonds = _diene_bonds(mol, sites)
     open_bonds = []
     other_open = 0
     for info in Chem.FindPotentialStereo(mol):
@@ -340,7 +340,8 @@ def _prepare(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Re
     charge = Chem.GetFormalCharge(mol)
     if charge:
         return rec.fail("charged", f"net charge {charge:+d} remains after neutralisation")
-    if not find_sites(mol):
+    sites = find_sites(mol)
+    if not sites:
         return rec.fail("no_diene", "no conjugated C=C-C=C unit")
     heavy = mol.GetNumHeavyAtoms()
     if heavy > limits.max_heavy_atoms:
@@ -350,14 +351,14 @@ def _prepare(row: int, rid: str, smiles: str, extra: dict, limits: Limits) -> Re
     if n_rot > limits.max_rotatable_bonds:
         return rec.fail("too_flexible", f"{n_rot} rotatable bonds; the cap is "
                                         f"{limits.max_rotatable_bonds} (config max_rotatable_bonds)")
-    isomers, notes = enumerate_diene_stereo(mol)
+    isomers, notes = enumerate_diene_stereo(mol, sites)
     rec.notes += notes
     seen = set()
     for iso in isomers[:MAX_DIENE_STEREO_ISOMERS]:
         iso_smiles = Chem.MolToSmiles(iso)
         if iso_smiles not in seen:
             seen.add(iso_smiles)
-            rec.isomers.append(Isomer(iso_smiles, Chem.MolToInchiKey(iso), len(find_sites(iso))))
+            rec.isomers.append(Isomer(iso_smiles, Chem.MolToInchiKey(iso), len(sites)))  # stereo leaves the sites as they are
     return rec
 
 

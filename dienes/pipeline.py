@@ -173,11 +173,16 @@ def compute_dienophile(smiles: str, settings: dict) -> dict:
             "settings": settings, "versions": software_versions()}
 
 
+_UMASK = os.umask(0)
+os.umask(_UMASK)
+
+
 def write_json(obj: dict, path) -> None:
     """Write atomically: a killed job never leaves a half-written result behind."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    os.chmod(tmp, 0o666 & ~_UMASK)  # readable like any other file the user writes (mkstemp makes 0600)
     try:
         with os.fdopen(fd, "w") as fh:
             json.dump(obj, fh, indent=1, sort_keys=False, allow_nan=False)

@@ -23,6 +23,8 @@ TS_COLUMNS = ("barrier_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
               "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
               "model_barrier_kJmol", "ts_imag_cm1", "face_gap_kJmol", "orientation_gap_kJmol")
 RANKED_STATUSES = ("ok", "ts_unverified")
+REFINED_COLUMNS = ("scis_penalty_refined_kJmol", "barrier_refined_kJmol", "intrinsic_barrier_refined_kJmol",
+                   "reaction_energy_refined_kJmol")
 
 
 @dataclass
@@ -88,6 +90,21 @@ def site_features(site: dict, dienophile: dict, ts_site: dict | None, smiles: st
     return out
 
 
+def refined_features(refined: dict | None, label: str) -> dict:
+    """The refined-level energies of a site (NaN where the site was not refined)."""
+    out = {c: float("nan") for c in REFINED_COLUMNS}
+    out["refine_status"] = ""
+    if refined is None:
+        return out
+    if refined.get("site") == label or refined.get("status") != "ok":
+        out["refine_status"] = refined.get("status", "")
+        out["refine_message"] = refined.get("message", "")
+    if refined.get("status") == "ok" and refined.get("site") == label:
+        out.update({c: float(refined[c]) for c in REFINED_COLUMNS})
+        out["refined_level"] = refined.get("level", "")
+    return out
+
+
 def _usable_sites(result: dict) -> list[dict]:
     return [s for s in result.get("sites", []) if s["status"] == "ok"]
 
@@ -109,6 +126,7 @@ def record_sites(rec: dict, computed: Computed) -> list[dict]:
             if site["status"] == "ok" and dph is not None:
                 row.update(site_features(site, dph, ts.get("sites", {}).get(site["label"]), iso["smiles"]))
                 row["regio_hint"] = site_regio_hint(site, dph, row["demand"])
+                row.update(refined_features(computed.refined.get(row["transition_key"]), site["label"]))
             else:
                 row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
                             "lumo_eV": site["lumo_eV"], "ts_status": "not_computed"})
@@ -231,18 +249,24 @@ def fit_reference(reference: list[dict], computed: Computed, config: dict, run_d
     return fit, summary, table
 
 
-def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict) -> pd.DataFrame:
+def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict,
+                  prefix: str = "") -> pd.DataFrame:
     """Predictions per site for the run's dienophile, with the applicability domain:
     every model descriptor within the reference set's span and leverage, the site's
-    class (kind, aromatic or not) in the reference set, and a verified saddle."""
+    class (kind, aromatic or not) in the reference set, and a verified saddle.
+    prefix 'refined' writes log10_k_refined, log10_k_refined_low, ... instead."""
     out = site_rows.copy()
     run = canonical(summary["run_dienophile"])
     for name, smiles in summary["dienophile_terms"].items():
         out[name] = 1.0 if canonical(smiles) == run else 0.0
-    for col in ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage"):
+    tag = f"_{prefix}" if prefix else ""
+    c_pred, c_lo, c_hi = ((f"log10_k{tag}", f"log10_k{tag}_low", f"log10_k{tag}_high") if prefix
+                          else ("log10_k_pred", "log10_k_low", "log10_k_high"))
+    c_lev, c_dom, c_note = f"leverage{tag}", f"in_domain{tag}", f"domain_note{tag}"
+    for col in (c_pred, c_lo, c_hi, c_lev):
         out[col] = np.nan
-    out["in_domain"] = pd.Series([None] * len(out), dtype=object)
-    out["domain_note"] = ""
+    out[c_dom] = pd.Series([None] * len(out), dtype=object)
+    out[c_note] = ""
     if not len(out):
         return out
     for f in fit.features:
@@ -253,10 +277,10 @@ def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict) -> 
         X = out.loc[ok, fit.features].to_numpy(float)
         pred, lo, hi = mdl.predict(fit, X, config["model"]["interval"])
         lev, _, reasons = mdl.domain(fit, X)
-        out.loc[ok, "log10_k_pred"] = pred
-        out.loc[ok, "log10_k_low"] = lo
-        out.loc[ok, "log10_k_high"] = hi
-        out.loc[ok, "leverage"] = lev
+        out.loc[ok, c_pred] = pred
+        out.loc[ok, c_lo] = lo
+        out.loc[ok, c_hi] = hi
+        out.loc[ok, c_lev] = lev
         classes = [site_class(k, a) for k, a in zip(out.loc[ok, "site_kind"], out.loc[ok, "aromatic"])]
         verified = out.loc[ok, "ts_verified"].fillna(False).astype(bool).tolist()
         notes = []
@@ -267,8 +291,8 @@ def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict) -> 
             if not v:
                 why.append("saddle not verified: barrier from the fixed-bond model structure")
             notes.append("; ".join(why))
-        out.loc[ok, "in_domain"] = [not n for n in notes]
-        out.loc[ok, "domain_note"] = notes
+        out.loc[ok, c_dom] = [not n for n in notes]
+        out.loc[ok, c_note] = notes
     return out
 
 
@@ -292,6 +316,9 @@ RANKING_COLUMNS = ["rank", "id", "in_domain", "smiles", "status", "message", "do
                    "model_barrier_kJmol", "ts_imag_cm1", "ts_verified", "best_site", "site_kind",
                    "n_sites", "dihedral_min_deg", "isomer_smiles", "n_isomers", "structure_key",
                    "transition_key", "n_gradients", "converged", "dienophile", "row"]
+REFINED_RANKING_COLUMNS = ["rank_refined", "log10_k_refined", "log10_k_refined_low", "log10_k_refined_high",
+                           "in_domain_refined", "domain_note_refined", *REFINED_COLUMNS, "refined_level",
+                           "refine_status"]
 BEST_SITE_COLUMNS = [c for c in RANKING_COLUMNS if c not in (
     "rank", "id", "smiles", "status", "message", "best_site", "n_sites", "n_isomers", "structure_key",
     "n_gradients", "converged", "row")]
@@ -311,7 +338,7 @@ def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> 
             if len(ok) and ok["log10_k_pred"].notna().any():
                 best = ok.loc[ok["log10_k_pred"].idxmax()]
                 res = computed.structures[best["key"]]
-                row.update({c: best[c] for c in BEST_SITE_COLUMNS if c in best})
+                row.update({c: best[c] for c in BEST_SITE_COLUMNS + REFINED_RANKING_COLUMNS if c in best})
                 row.update({"best_site": best["site"], "n_sites": int((mine["key"] == best["key"]).sum()),
                             "structure_key": best["key"], "n_gradients": res.get("n_gradients"),
                             "converged": res.get("converged")})
@@ -332,7 +359,19 @@ def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> 
     table["rank"] = pd.Series(dtype="Int64")
     table.loc[order, "rank"] = np.arange(1, len(order) + 1)
     table["rank"] = table["rank"].astype("Int64")
-    return table[RANKING_COLUMNS + [c for c in table.columns if c not in RANKING_COLUMNS]]
+    columns = list(RANKING_COLUMNS)
+    if "log10_k_refined" in table and table["log10_k_refined"].notna().any():
+        refined = ranked & table["log10_k_refined"].notna()
+        order = table.loc[refined].sort_values(["log10_k_refined", "row"], ascending=[False, True]).index
+        table["rank_refined"] = pd.Series(dtype="Int64")
+        table.loc[order, "rank_refined"] = np.arange(1, len(order) + 1)
+        table["rank_refined"] = table["rank_refined"].astype("Int64")
+        for col in REFINED_RANKING_COLUMNS:
+            if col not in table:
+                table[col] = np.nan
+        columns = columns[:1] + ["rank_refined"] + columns[1:] + [
+            c for c in REFINED_RANKING_COLUMNS if c != "rank_refined"]
+    return table[columns + [c for c in table.columns if c not in columns]]
 
 
 def _unranked(rec: dict, computed: Computed, ok: pd.DataFrame) -> dict:

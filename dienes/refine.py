@@ -28,9 +28,10 @@ from .backends import DFTSettings, dft_energy
 
 def level_settings(refine: dict) -> DFTSettings:
     """The DFTSettings of the config's `refine` section."""
+    def given(v):
+        return None if v in (None, "", "none") else v
     return DFTSettings(method=refine["method"], basis=refine["basis"],
-                       dispersion=refine.get("dispersion") or None,
-                       solvent=refine.get("solvent") or None)
+                       dispersion=given(refine.get("dispersion")), solvent=given(refine.get("solvent")))
 
 
 def level_dict(level: DFTSettings) -> dict:

@@ -62,6 +62,14 @@ def batch_path(results, stage: str, bid: str) -> Path:
     return Path(results) / "batches" / stage / f"{bid}.json"
 
 
+def refined_path(results, stem: str, rhash: str) -> Path:
+    return Path(results) / "refined" / f"{stem}_{rhash}.json"
+
+
+def refined_dienophile_path(results, dhash: str, rhash: str) -> Path:
+    return Path(results) / "refined" / f"dienophile_{dhash}_{rhash}.json"
+
+
 # ------------------------------------------------------------------ prepare
 
 def _record_dict(rec, config: dict, dienophile_smiles: str) -> dict:
@@ -252,6 +260,67 @@ def compute_transitions(config: dict, manifest_path, bid: str, out_path, results
     return summary
 
 
+# -------------------------------------------------------------- refinement
+
+def shortlist(config: dict, manifest_path, out_path, results="results") -> dict:
+    """What the refinement computes: every usable reference diene (so that a refined
+    model can be fitted) and the `refine.top` best GFN2-xTB-ranked library rows."""
+    write_json, read_json = _json()
+    config = cfg.validate(config)
+    manifest = read_json(manifest_path)
+    computed = load_computed(manifest, results)
+    table, _, _, ref_table = rank_tables(manifest, computed, config)
+    top = table[(table["status"] == "ok") & table["rank"].notna()].sort_values("rank")
+    top = top.head(int(config["refine"]["top"]))
+    stems = list(dict.fromkeys(top["transition_key"].astype(str)))
+    for rec in manifest["reference_records"]:
+        if rec["status"] == "ok" and rec["isomers"]:
+            stems.append(f"{rec['isomers'][0]['key']}__{rec['dienophile']['thash']}")
+    stems = list(dict.fromkeys(s for s in stems if s in manifest["transitions"]))
+    out = {"rhash": cfg.refine_hash(config), "pairs": stems,
+           "dienophiles": sorted({manifest["transitions"][s]["dhash"] for s in stems}),
+           "library_rows": [int(r) for r in top["row"]], "top": int(config["refine"]["top"])}
+    write_json(out, out_path)
+    return out
+
+
+def refine_dienophile(config: dict, dienophile_file, out_path, threads: int = 1) -> dict:
+    from .refine import level_settings, refine_dienophile as refine_one
+    write_json, read_json = _json()
+    config = cfg.validate(config)
+    r = refine_one(read_json(dienophile_file), level_settings(config["refine"]), threads)
+    write_json(r, out_path)
+    return r
+
+
+def refine_pair(config: dict, manifest_path, stem: str, dienophile_refined, out_path,
+                results="results", threads: int = 1) -> dict:
+    """Refined single points of one (structure, dienophile) pair."""
+    from .refine import level_settings, refine_pair as refine_one
+    write_json, read_json = _json()
+    config = cfg.validate(config)
+    task = read_json(manifest_path)["transitions"][stem]
+    r = refine_one(read_json(structure_path(results, task["key"])), read_json(transition_path(results, stem)),
+                   read_json(dienophile_refined), level_settings(config["refine"]), threads)
+    write_json(r, out_path)
+    return r
+
+
+def load_refined(shortlist_path, results="results") -> dict:
+    """Refined pair results by transition stem (a missing file simply is not there)."""
+    _, read_json = _json()
+    if not Path(shortlist_path).is_file():
+        return {}
+    sl = read_json(shortlist_path)
+    out = {}
+    for stem in sl["pairs"]:
+        try:
+            out[stem] = read_json(refined_path(results, stem, sl["rhash"]))
+        except (FileNotFoundError, ValueError):
+            continue
+    return out
+
+
 # ----------------------------------------------------------------- ranking
 
 def load_computed(manifest: dict, results="results"):
@@ -281,23 +350,41 @@ def load_computed(manifest: dict, results="results"):
 
 def rank_tables(manifest: dict, computed, config: dict):
     """Fit on the reference records, predict every site, pick each row's best:
-    (ranking table, sites table, model summary, reference table)."""
+    (ranking table, sites table, model summary, reference table). With refined
+    results present, a refined model is fitted and predicted alongside."""
     from . import ranking
     fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], computed, config,
                                                     config["dienophile"])
     sites = ranking.site_table(manifest["records"], computed)
     if len(sites):
         sites = ranking.predict_sites(sites, fit, config, summary)
+    refined_summary = None
+    if computed.refined:
+        try:
+            rfit, refined_summary, rref = ranking.fit_reference(
+                manifest["reference_records"], computed, config, config["dienophile"], suffix="_refined")
+        except ValueError as exc:
+            refined_summary = {"error": str(exc)}
+        else:
+            keep = [c for c in ("used", "reason", "log10_k_cv", "log10_k_fit", "log10_k_nested_cv")
+                    if c in rref]
+            ref_table = ref_table.join(rref[keep].add_suffix("_refined"))
+            if len(sites):
+                sites = ranking.predict_sites(sites, rfit, config, refined_summary, prefix="refined")
     table = ranking.rank_table(manifest["records"], computed, sites)
+    if refined_summary is not None:
+        summary["refined"] = refined_summary
     return table, sites, summary, ref_table
 
 
-def rank(config: dict, manifest_path, out_dir, results="results") -> list[str]:
+def rank(config: dict, manifest_path, out_dir, results="results", shortlist_path=None) -> list[str]:
     from . import outputs
     _, read_json = _json()
     config = cfg.validate(config)
     manifest = read_json(manifest_path)
     computed = load_computed(manifest, results)
+    if shortlist_path:
+        computed.refined = load_refined(shortlist_path, results)
     table, sites, summary, ref_table = rank_tables(manifest, computed, config)
     out_dir = Path(out_dir)
     outputs.write_table(table, out_dir / "ranking.csv")

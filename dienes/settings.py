@@ -6,16 +6,19 @@ from __future__ import annotations
 import copy
 import hashlib
 import json
+import logging
 from pathlib import Path
 
 import yaml
 from jsonschema import Draft202012Validator, validators
 
+from .paths import workflow_root
+
 # Bump when a change in the science changes per-structure numbers: old result
 # files then stop matching and are recomputed.
 SCIENCE_VERSION = 2
 
-SCHEMA_PATH = Path(__file__).resolve().parent.parent / "config" / "schema.yaml"
+SCHEMA_PATH = workflow_root() / "config" / "schema.yaml"
 
 # keys that change a per-structure result (the rest only change ranking and report)
 STRUCTURE_KEYS = ("temperature_K", "solvent", "backend", "seed", "conformers", "optimisation")
@@ -41,14 +44,52 @@ def load_schema(path=SCHEMA_PATH) -> dict:
     return yaml.safe_load(Path(path).read_text())
 
 
+_FALLBACK_SAID = []
+
+
+def _backend_fallback(cfg: dict) -> None:
+    """xtb-python has wheels up to Python 3.11: where it is missing and tblite is
+    present, tblite (the same GFN2-xTB Hamiltonian) is used, said once per process."""
+    from .backends import available
+    if cfg.get("backend") == "xtb-python" and not available("xtb-python") and available("tblite"):
+        cfg["backend"] = "tblite"
+        if not _FALLBACK_SAID:
+            _FALLBACK_SAID.append(True)
+            logging.getLogger("dienes").warning(
+                "backend xtb-python is not installed for this Python; using tblite (same GFN2-xTB)")
+
+
+def _coerce(value, schema: dict):
+    """Strings where the schema wants a number or a flag become one: Snakemake's
+    --config hands nested values over as text (refine={top: 10} gives '10')."""
+    kind = schema.get("type")
+    if isinstance(value, dict) and kind == "object":
+        props = schema.get("properties", {})
+        return {k: _coerce(v, props.get(k, {})) for k, v in value.items()}
+    if isinstance(value, list) and kind == "array":
+        return [_coerce(v, schema.get("items", {})) for v in value]
+    if isinstance(value, str):
+        try:
+            if kind == "integer" or (not kind and schema.get("oneOf") and value.isdigit()):
+                return int(value)
+            if kind == "number":
+                return float(value)
+        except ValueError:
+            return value
+        if kind == "boolean" and value.lower() in ("true", "false"):
+            return value.lower() == "true"
+    return value
+
+
 def validate(config: dict, schema_path=SCHEMA_PATH) -> dict:
     """A validated copy of `config` with schema defaults filled in."""
-    cfg = copy.deepcopy(config)
+    cfg = _coerce(copy.deepcopy(config), load_schema(schema_path))
     errors = sorted(_with_defaults(Draft202012Validator)(load_schema(schema_path)).iter_errors(cfg),
                     key=lambda e: list(e.path))
     if errors:
         lines = [f"{'/'.join(map(str, e.path)) or '(top)'}: {e.message}" for e in errors]
         raise ConfigError("invalid configuration: " + "; ".join(lines))
+    _backend_fallback(cfg)
     return cfg
 
 
@@ -90,3 +131,9 @@ def transition_hash(config: dict, dienophile_smiles: str) -> str:
     transition-state settings and the dienophile."""
     return settings_hash(structure_settings(config) | {"transition_state": config["transition_state"],
                                                        "dienophile": canonical_smiles(dienophile_smiles)})
+
+
+def refine_hash(config: dict) -> str:
+    """Names refined result files: the density-functional level and the science version."""
+    return settings_hash({"refine": {k: v for k, v in config["refine"].items() if k != "top"},
+                          "science_version": SCIENCE_VERSION})

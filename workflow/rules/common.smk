@@ -31,9 +31,24 @@ if workflow.is_main_process:
 CONFIG_HASH = dienes_settings.settings_hash(config | {"version": dienes.__version__})
 
 
+REFINE = config["refine"]["top"] > 0
+REFINE_HASH = dienes_settings.refine_hash(config)
+
+
+# cheap whole-run steps stay on the submit host when a cluster executor is used
+localrules:
+    all,
+    prepare,
+    shortlist,
+    rank,
+    report,
+
+
 wildcard_constraints:
     bid=r"[0-9a-f]{12}",
     dhash=r"[0-9a-f]{10}",
+    rhash=r"[0-9a-f]{10}",
+    stem=r"[A-Z]{14}-[A-Z]{10}-[A-Z]_[0-9a-f]{10}__[0-9a-f]{10}",
 
 
 def manifest():
@@ -73,3 +88,17 @@ def get_rank_input(wildcards):
     return ([batch_flag("structures", b) for b in m["batches"]["structures"]]
             + [batch_flag("transition", b) for b in m["batches"]["transition"]]
             + [f"results/dienophiles/{d}.json" for d in m["dienophiles"]])
+
+
+def get_refine_dienophile(wildcards):
+    dhash = manifest()["transitions"][wildcards.stem]["dhash"]
+    return f"results/refined/dienophile_{dhash}_{wildcards.rhash}.json"
+
+
+def get_refined_input(wildcards):
+    """The shortlist and its refined results (nothing when the refinement is off)."""
+    if not REFINE:
+        return []
+    path = checkpoints.shortlist.get().output[0]
+    sl = json.loads(Path(path).read_text())
+    return [path] + [f"results/refined/{s}_{sl['rhash']}.json" for s in sl["pairs"]]

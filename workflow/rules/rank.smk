@@ -2,8 +2,10 @@ rule rank:
     input:
         manifest=MANIFEST,
         computed=get_rank_input,
+        refined=get_refined_input,
     params:
         config_hash=CONFIG_HASH,
+        shortlist="results/shortlist.json" if REFINE else None,
     output:
         ranking="results/ranking.csv",
         sites="results/sites.csv",

@@ -160,11 +160,11 @@ def domain(model: Fit, X: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[list
     span = np.where(hi > lo, hi - lo, np.abs(hi) + 1.0)
     reasons = []
     for row, h in zip(X, lev):
-        why = [f"{f} {v:.3g} outside the reference range {a:.3g} to {b:.3g}"
+        why = [f"{f} {v:.3g} beyond the reference range {a:.3g} to {b:.3g}"
                for f, v, a, b, s in zip(model.features, row, lo, hi, span)
                if v < a - RANGE_MARGIN * s or v > b + RANGE_MARGIN * s]
         if h > cut:
-            why.append(f"leverage {h:.2f} above {cut:.2f} (descriptor combination unlike the reference set)")
+            why.append(f"leverage {h:.2f} > {cut:.2f} (descriptors combined unlike the reference set)")
         reasons.append(why)
     return lev, np.array([not r for r in reasons]), reasons
 

@@ -19,6 +19,11 @@ from ase.optimize import LBFGS
 
 from .backends import Molecule, SinglePoint
 
+# ASE's LBFGS starts from a Hessian guess of alpha * identity (eV/A^2; ASE default 70).
+# Measured on 24 MMFF conformers of 6 dienes with GFN2-xTB: 35 needs 27 % fewer
+# gradient calls to fmax 0.01 and reaches the same minima (benchmarks/conformer_protocol.py).
+LBFGS_ALPHA_EV_A2 = 35.0
+
 # (energy_eV, forces_eV_A) from positions (Angstrom)
 EnergyForces = Callable[[np.ndarray], tuple[float, np.ndarray]]
 
@@ -89,7 +94,7 @@ def optimize(numbers, positions_A, energy_forces: EnergyForces, *,
             bonds=[[float(v), list(map(int, i))] for v, i in bonds_A] or None))
         # impose the targets on the start geometry (ASE projects on set_positions)
         atoms.set_positions(atoms.get_positions(), apply_constraint=True)
-    opt = LBFGS(atoms, logfile=None, maxstep=0.2)
+    opt = LBFGS(atoms, logfile=None, maxstep=0.2, alpha=LBFGS_ALPHA_EV_A2)
     converged = bool(opt.run(fmax=fmax_eV_A, steps=max_steps))
     energy = atoms.get_potential_energy()
     return OptResult(atoms.get_positions().copy(), float(energy), converged, calc.n_calls)

@@ -396,7 +396,7 @@ def rank(config: dict, manifest_path, out_dir, results="results", shortlist_path
                 "seed": manifest["seed"], "settings": manifest["settings"],
                 "temperature_K": config["temperature_K"], "solvent": config["solvent"],
                 "transition_state": config["transition_state"],
-                "dienophile": {k: run_dph.get(k) for k in ("smiles", "homo_eV", "lumo_eV")}}
+                "dienophile": {k: run_dph.get(k) for k in ("smiles", "homo_eV", "lumo_eV", "reactive_bond")}}
     outputs.write_model(summary, out_dir / "model.json")
     return outputs.summary_lines(table, out_dir, summary)
 

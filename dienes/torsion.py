@@ -30,6 +30,8 @@ S_CIS_FAMILY_DEG = 40.0         # |dihedral| below this counts as reactive s-cis
 S_TRANS_LOCK_DEG = 135.0        # a ring site with every |dihedral| above this is locked s-trans
 FAMILY_SPLIT_DEG = 90.0         # s-cis vs s-trans family for choosing starts
 RELEASE_KICK_A = 0.03           # random displacement before releasing a constraint (Angstrom)
+GAUCHE_PROBE_DEG = 35.0         # a planar s-cis is released twisted to this dihedral: a flat planar
+                                # top (2-tert-butylbutadiene) then still rolls into its gauche well
 PLANAR_START_TOLERANCE_DEG = 5.0
 
 
@@ -165,32 +167,35 @@ def analyse_structure(mol_h: Chem.Mol, sites: list[Site], backend: Molecule,
             continue
         planar = cf.prune(mol_h, planar_pool[k], ff_energy, settings)[:settings.planar_starts]
         best: OptResult | None = None
+
+        def release(r: OptResult, angle: float):
+            nonlocal n_grad, all_converged
+            rel, n = _release(mol_h, base[0], numbers, r.positions_A, ef, s, angle, rng, fmax_eV_A, max_steps)
+            n_grad += n
+            all_converged &= rel.converged
+            minima.append(Minimum(rel.energy_eV * EV_KJMOL, rel.positions_A, rel.converged,
+                                  f"planar s-cis of site {s.label} released at {angle:+.0f} deg"))
+
         for cid in planar:
             r, n = _planar_opt(numbers, cf.positions(mol_h, cid), ef, s.atoms, fmax_eV_A, max_steps)
             n_grad += n
             results[k].n_planar_starts += 1
             if best is None or r.energy_eV < best.energy_eV:
                 best = r
-            rel = optimize(numbers, r.positions_A + rng.normal(scale=RELEASE_KICK_A, size=r.positions_A.shape),
-                           ef, fmax_eV_A=fmax_eV_A, max_steps=max_steps)
-            n_grad += rel.n_gradients
-            all_converged &= rel.converged
-            minima.append(Minimum(rel.energy_eV * EV_KJMOL, rel.positions_A, rel.converged,
-                                  f"released planar s-cis of site {s.label}"))
+            release(r, GAUCHE_PROBE_DEG)
         # one more start from the lowest minimum itself, rotated to planar: catches a
         # better substituent arrangement that the force field did not offer
         low = min(minima, key=lambda m: m.energy_kJmol)
         if s.kind == ACYCLIC:
-            tmp = cf.copy_conformer(mol_h, base[0])
-            conf = mol_h.GetConformer(tmp)
-            for i, p in enumerate(low.positions_A):
-                conf.SetAtomPosition(i, p.tolist())
-            if _set_dihedral(mol_h, tmp, s.atoms, 0.0):
-                r, n = _planar_opt(numbers, cf.positions(mol_h, tmp), ef, s.atoms, fmax_eV_A, max_steps)
+            start = _twisted(mol_h, base[0], low.positions_A, s.atoms, 0.0)
+            if start is not None:
+                r, n = _planar_opt(numbers, start, ef, s.atoms, fmax_eV_A, max_steps)
                 n_grad += n
                 results[k].n_planar_starts += 1
                 if best is None or r.energy_eV < best.energy_eV:
                     best = r
+        if best is not None:
+            release(best, -GAUCHE_PROBE_DEG)   # the other gauche well of the structure that counts
         if best is None:
             results[k].status = "no_planar_start"
             continue
@@ -224,6 +229,31 @@ def analyse_structure(mol_h: Chem.Mol, sites: list[Site], backend: Molecule,
                              all_converged=bool(all_converged), notes=notes)
 
 
+def _twisted(mol_h: Chem.Mol, template_cid: int, positions_A, atoms, angle_deg: float):
+    """`positions_A` with the dihedral `atoms` set to `angle_deg` by rotating one side
+    (None when the central bond is in a ring)."""
+    tmp = cf.copy_conformer(mol_h, template_cid)
+    conf = mol_h.GetConformer(tmp)
+    for i, p in enumerate(np.asarray(positions_A)):
+        conf.SetAtomPosition(i, p.tolist())
+    return cf.positions(mol_h, tmp) if _set_dihedral(mol_h, tmp, atoms, angle_deg) else None
+
+
+def _release(mol_h, template_cid, numbers, planar_A, ef, site: Site, angle_deg: float, rng,
+             fmax_eV_A: float, max_steps: int) -> tuple[OptResult, int]:
+    """Free optimisation from a planar s-cis structure twisted to `angle_deg` (with a small
+    seeded kick); ring-bound sites are walked there under the constraint first."""
+    n = 0
+    start = _twisted(mol_h, template_cid, planar_A, site.atoms, angle_deg) if site.kind == ACYCLIC else None
+    if start is None:
+        walked, n = constrained_dihedral_path(numbers, planar_A, ef, site.atoms, angle_deg,
+                                              fmax_eV_A=max(fmax_eV_A, 0.05), max_steps=max_steps)
+        start = walked.positions_A
+    kick = rng.normal(scale=RELEASE_KICK_A, size=np.shape(start))
+    rel = optimize(numbers, np.asarray(start) + kick, ef, fmax_eV_A=fmax_eV_A, max_steps=max_steps)
+    return rel, n + rel.n_gradients
+
+
 def _planar_opt(numbers, start_A, ef, atoms, fmax_eV_A, max_steps) -> tuple[OptResult, int]:
     if abs(dihedral_deg(start_A, atoms)) <= PLANAR_START_TOLERANCE_DEG:
         r = optimize(numbers, start_A, ef, dihedrals_deg=[(0.0, atoms)],
@@ -233,23 +263,32 @@ def _planar_opt(numbers, start_A, ef, atoms, fmax_eV_A, max_steps) -> tuple[OptR
                                      fmax_eV_A=fmax_eV_A, max_steps=max_steps)
 
 
-def torsion_profile(numbers, start_A, backend: Molecule, atoms, step_deg: float = 15.0,
-                    fmax_eV_A: float = 0.02) -> tuple[np.ndarray, np.ndarray]:
+def torsion_scan(numbers, start_A, backend: Molecule, atoms, step_deg: float = 15.0,
+                 fmax_eV_A: float = 0.02):
     """Relaxed scan of the diene dihedral from 0 to 180 deg.
 
-    Returns (dihedrals_deg, energies_kJmol relative to the lowest point).
-    Starts at planar s-cis from `start_A` and walks outwards, each point
-    relaxed with the dihedral held.
+    Returns (dihedrals_deg, energies_kJmol relative to the lowest point, positions_A
+    of every point). Starts at planar s-cis from `start_A` and walks outwards, each
+    point relaxed with the dihedral held.
     """
     ef = backend_energy_forces(backend)
     r, _ = _planar_opt(numbers, np.asarray(start_A), ef, atoms, fmax_eV_A, 300)
     angles = np.arange(0.0, 180.0 + 1e-9, step_deg)
-    energies = []
+    energies, geometries = [], []
     pos = r.positions_A
     for a in angles:
         res, _ = constrained_dihedral_path(numbers, pos, ef, atoms, float(a), step_deg=step_deg,
                                            fmax_eV_A=fmax_eV_A)
         pos = res.positions_A
         energies.append(res.energy_eV * EV_KJMOL)
+        geometries.append(pos.copy())
     e = np.array(energies)
-    return angles, e - e.min()
+    return angles, e - e.min(), geometries
+
+
+def torsion_profile(numbers, start_A, backend: Molecule, atoms, step_deg: float = 15.0,
+                    fmax_eV_A: float = 0.02) -> tuple[np.ndarray, np.ndarray]:
+    """Relaxed scan of the diene dihedral, 0 to 180 deg: (dihedrals_deg, energies_kJmol
+    relative to the lowest point)."""
+    angles, energies, _ = torsion_scan(numbers, start_A, backend, atoms, step_deg, fmax_eV_A)
+    return angles, energies

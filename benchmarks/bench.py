@@ -22,7 +22,7 @@ from rdkit.Chem import AllChem  # noqa: E402
 from dienes import settings as cfg  # noqa: E402
 from dienes.backends import Molecule, Settings  # noqa: E402
 from dienes.pipeline import backend_settings, compute_dienophile, compute_structure  # noqa: E402
-from dienes.strain import strain_for_structure  # noqa: E402
+from dienes.transition import transition_states_for_structure  # noqa: E402
 
 PANEL = ["C=CC=C", "C/C=C/C=C", "C/C=C\\C=C", "C1=CCC=C1", "C1=CCCC=C1", "CO/C=C/C=C",
          "C=C1CCCCC1=C", "C=C/C=C/c1ccccc1", "CC(C)C1=CC=C(C)CC1", "C=CC(=C)CCC=C(C)C"]
@@ -52,26 +52,26 @@ def main():
     print(f"baseline: one GFN2-xTB single point of butadiene = {base * 1e3:.2f} ms ({args.backend})")
     dph = compute_dienophile(config["dienophile"], st)
     print(f"{'smiles':<26}{'status':<10}{'time_s':>8}{'x_base':>10}{'grads':>7}{'ms/grad':>9}"
-          f"{'strain_s':>10}{'x_base':>9}")
-    times, grads, strain_times = [], [], []
+          f"{'ts_s':>10}{'x_base':>9}{'ts_grads':>9}")
+    times, grads, ts_times = [], [], []
     for smi in PANEL:
         t = time.perf_counter()
         r = compute_structure(smi, st)
         dt = time.perf_counter() - t
         t = time.perf_counter()
-        strain_for_structure(r, dph, backend_settings(st), config["strain"]["forming_bond_A"])
+        ts = transition_states_for_structure(r, dph, backend_settings(st), config["transition_state"])
         ds = time.perf_counter() - t
         times.append(dt)
-        strain_times.append(ds)
+        ts_times.append(ds)
         grads.append(r.get("n_gradients", 0))
         print(f"{smi:<26}{r['status']:<10}{dt:8.2f}{dt / base:10.0f}{grads[-1]:7d}"
-              f"{1e3 * dt / max(grads[-1], 1):9.2f}{ds:10.2f}{ds / base:9.0f}")
+              f"{1e3 * dt / max(grads[-1], 1):9.2f}{ds:10.2f}{ds / base:9.0f}{ts.get('n_gradients', 0):9d}")
     peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     print(f"median per diene: {statistics.median(times):.2f} s = {statistics.median(times) / base:.0f} x baseline; "
           f"median gradient calls {statistics.median(grads):.0f}; total {sum(times):.1f} s; "
           f"peak RSS {peak_mb:.0f} MB")
-    print(f"strain step (model TS with {config['dienophile']}): median {statistics.median(strain_times):.2f} s "
-          f"= {statistics.median(strain_times) / base:.0f} x baseline; total {sum(strain_times):.1f} s")
+    print(f"transition-structure step (with {config['dienophile']}): median {statistics.median(ts_times):.2f} s "
+          f"= {statistics.median(ts_times) / base:.0f} x baseline; total {sum(ts_times):.1f} s")
 
 
 if __name__ == "__main__":

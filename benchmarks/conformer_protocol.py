@@ -19,7 +19,7 @@ against heavy atoms and rotatable bonds, plus a PNG plot), and ends with
 
 With --ts it also times the transition-structure step against a denser search
 over approaches (three forming-bond lengths and every planar start) and
-prints the barrier agreement. --quick: 6 dienes and 24 reference conformers.
+prints the barrier agreement. --quick: 6 dienes and 16 reference conformers.
 
     python benchmarks/conformer_protocol.py [--quick] [--ts] [--conformers 200] [--plot out.png]
 """
@@ -153,7 +153,7 @@ def dense_ts(structure: dict, dph: dict, st: dict, ts_settings: dict) -> dict:
 
 def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
-    ap.add_argument("--quick", action="store_true", help="6 dienes, 24 reference conformers (a few minutes)")
+    ap.add_argument("--quick", action="store_true", help="6 dienes, 16 reference conformers (a few minutes)")
     ap.add_argument("--conformers", type=int, default=None, help="reference ETKDG conformers (default 200)")
     ap.add_argument("--ts", action="store_true", help="also time the transition-structure step")
     ap.add_argument("--plot", default=None, help="PNG of time and gradient calls against size")
@@ -162,7 +162,7 @@ def main():
     config = cfg.load(CONFIG)
     st = cfg.structure_settings(config)
     panel = QUICK if args.quick else PANEL
-    n_ref = args.conformers or (24 if args.quick else 200)
+    n_ref = args.conformers or (16 if args.quick else 200)
     dph = compute_dienophile(config["dienophile"], st) if args.ts else None
     rows, ts_rows = [], []
     print(f"{'smiles':<32}{'atoms':>6}{'rot':>4}{'fast_s':>8}{'grads':>7}{'ref_s':>8}{'grads':>8}"

@@ -50,7 +50,7 @@ def failed_logs(workdir: Path) -> list[str]:
     logs = sorted((workdir / ".snakemake" / "log").glob("*.snakemake.log"), key=lambda p: p.stat().st_mtime)
     if not logs:
         return []
-    text = logs[-1].read_text(errors="replace")
+    text = "\n" + logs[-1].read_text(errors="replace")
     out = []
     for block in re.split(r"\n(?=Error in rule )", text)[1:]:
         m = re.search(r"^\s+log: (\S+)", block, re.M)

@@ -183,6 +183,24 @@ def stale_manifest(manifest_path, results="results") -> str:
     return ""
 
 
+def drop_stale_batches(results="results") -> list[Path]:
+    """Remove batch summaries that claim a member whose result file is gone (deleted, or
+    moved aside as unreadable): the batch then runs again and recomputes just that member."""
+    import json
+    dropped = []
+    for stage, where in (("structures", structure_path), ("transition", transition_path)):
+        for flag in sorted((Path(results) / "batches" / stage).glob("*.json")):
+            try:
+                members = json.loads(flag.read_text())["members"]
+                names = [m.get("key") or m.get("stem") for m in members]
+            except (OSError, ValueError, KeyError, AttributeError):
+                names = [None]
+            if any(n is None or not where(results, n).is_file() for n in names):
+                flag.unlink(missing_ok=True)
+                dropped.append(flag)
+    return dropped
+
+
 # ------------------------------------------------------------ per structure
 
 def _batch_summary(stage: str, bid: str, done: list[dict], t0: float) -> dict:

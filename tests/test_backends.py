@@ -72,6 +72,8 @@ def test_unsupported_element_refused():
 
 def test_backends_agree_on_where_orbitals_live():
     # the AO order within a p shell differs between the two codes; atom weights must not
+    if len(BACKENDS) < 2:
+        pytest.skip("only one GFN2-xTB backend is importable here: nothing to compare")
     from dienes.backends import atom_orbital_weights
     m = Chem.AddHs(Chem.MolFromSmiles("C=CC=O"))
     AllChem.EmbedMolecule(m, randomSeed=1)

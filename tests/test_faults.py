@@ -64,7 +64,7 @@ LIB = [("K-1", "C=CC=C", ""), ("K-2", "C/C=C/C=C", ""), ("K-3", "C=CC(=C)CCC=C(C
 def _numbers(tmp_path):
     df = pd.DataFrame(_ranking(tmp_path))
     return df[["id", "status", "rank", "log10_k_pred", "scis_penalty_kJmol", "homo_eV",
-               "distortion_kJmol"]]
+               "barrier_kJmol"]]
 
 
 @pytest.mark.slow

@@ -22,7 +22,10 @@ def site(smiles, settings):
 
 
 def test_butadiene_penalty_in_range(backend_settings):
-    # acceptance range 6-16 kJ/mol (project contract); GFN2-xTB gives ~9 kJ/mol here
+    # planar s-cis above s-trans: gauche 12 kJ/mol above s-trans (Martin-Drumel et al., ISMS 2019,
+    # rotational spectroscopy) plus 0.4-0.8 kcal/mol for planar over gauche (ab initio): 14-15 kJ/mol.
+    # GFN2-xTB underestimates conformer energies (docs/validation.md: gauche -3 kJ/mol); 6-16 allows
+    # that and catches a planar search that failed (0) or found a broken structure (far above)
     s = site("C=CC=C", backend_settings)
     assert 6.0 <= s["scis_penalty_kJmol"] <= 16.0
     assert abs(s["dihedral_min_deg"]) == pytest.approx(180.0, abs=5.0)  # s-trans global minimum
@@ -56,16 +59,13 @@ def test_ring_that_lets_the_diene_twist(backend_settings):
     assert s["scis_penalty_kJmol"] > 0.0
 
 
-@pytest.mark.parametrize("smiles", [
-    "C=CC(=C)C(C)(C)C",          # 2-tert-butylbutadiene: the search once missed its minimum
-    "CO/C=C/C=C",                # (E)-1-methoxybutadiene: the methoxy rotamer matters
-    "CC(C)=CC=C",                # 4-methyl-1,3-pentadiene
-])
-def test_penalty_never_negative(smiles, backend_settings):
-    r = result(smiles, backend_settings)
-    assert r["status"] == "ok"
-    assert all(s["scis_penalty_kJmol"] >= 0.0 for s in r["sites"])
-    assert min(r["minima_rel_kJmol"]) == 0.0
+def test_planar_release_finds_the_gauche_well(backend_settings):
+    # 2-tert-butylbutadiene: the planar s-cis is a flat top between two gauche wells; an
+    # exhaustive search (benchmarks/conformer_protocol.py) puts the gauche 3.0 kJ/mol below it.
+    # A search that stops at the planar top reports 0 here
+    s = site("C=CC(=C)C(C)(C)C", backend_settings)
+    assert s["scis_penalty_kJmol"] == pytest.approx(3.0, abs=1.0)
+    assert 20.0 < abs(s["dihedral_min_deg"]) < 60.0
 
 
 def test_di_tert_butyl_cannot_planarise(backend_settings):

@@ -1,8 +1,13 @@
-"""Known reactivity facts (common practice) through the whole in-process ranking (slow).
-Where both dienes of a fact are in the reference set, they are left out of the fit."""
+"""Known reactivity facts through the whole in-process ranking (slow).
+
+One in-process run ranks a panel with the shipped reference set (maleic
+anhydride). Where both dienes of a fact are in the reference set they are left
+out of the fit, so the fact is predicted, not fitted. Sources beside each fact.
+"""
 import csv
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from dienes.run import rank_in_process
@@ -12,12 +17,15 @@ from .conftest import REPO
 pytestmark = pytest.mark.slow
 
 PANEL = [
-    ("bd", "C=CC=C"), ("iso", "C=CC(C)=C"), ("dmb", "C=C(C)C(C)=C"), ("e-pd", "C/C=C/C=C"),
-    ("z-pd", "C/C=C\\C=C"), ("cpd", "C1=CCC=C1"), ("mp", "CC(C)=CC=C"),
-    ("dtb", "C=C(C(C)(C)C)C(=C)C(C)(C)C"), ("mch", "C=C1CCCC=C1"), ("dmch", "C=C1CCCCC1=C"),
+    ("bd", "C=CC=C"), ("dmb", "C=C(C)C(C)=C"), ("e-pd", "C/C=C/C=C"), ("z-pd", "C/C=C\\C=C"),
+    ("cpd", "C1=CCC=C1"), ("dtb", "C=C(C(C)(C)C)C(=C)C(C)(C)C"), ("mch", "C=C1CCCC=C1"),
+    ("furan", "c1ccoc1"), ("mefuran", "Cc1ccco1"), ("thiophene", "c1ccsc1"), ("nmp", "Cn1cccc1"),
+    ("anthracene", "c1ccc2cc3ccccc3cc2c1"),
 ]
 with open(Path(REPO) / "config" / "reference_rates.csv") as fh:
     REFERENCE = {r["smiles"]: r["id"] for r in csv.DictReader(fh)}
+    fh.seek(0)
+    REFERENCE_Y = {r["id"]: float(r["log10_k"]) for r in csv.DictReader(fh)}
 
 
 @pytest.fixture(scope="module")
@@ -35,19 +43,45 @@ def panel(tmp_path_factory, config):
 def _pred(panel, leave_out=()):
     cfg, cache = panel
     keep = [i for s, i in REFERENCE.items() if s not in leave_out]
-    table, _, _ = rank_in_process(cfg, cache_dir=cache, reference_ids=keep)
-    return {r["id"]: r for _, r in table.iterrows()}
+    table, _, summary = rank_in_process(cfg, cache_dir=cache, reference_ids=keep)
+    return {r["id"]: r for _, r in table.iterrows()}, summary
 
 
-@pytest.mark.parametrize("fast,slow", [("cpd", "bd"), ("e-pd", "z-pd"), ("dmb", "bd")])
+@pytest.mark.parametrize("fast,slow", [
+    ("cpd", "bd"),      # about 1000-fold with maleic anhydride (Sauer & Sustmann 1980, recalled)
+    ("e-pd", "z-pd"),   # the (Z)-1-methyl points into the s-cis diene (common practice)
+    ("dmb", "bd"),      # 2,3-dimethyl groups favour s-cis and raise the HOMO (Sauer & Sustmann, recalled)
+])
 def test_order(panel, fast, slow):
     smiles = dict(PANEL)
-    rows = _pred(panel, leave_out=(smiles[fast], smiles[slow]))
+    rows, _ = _pred(panel, leave_out=(smiles[fast], smiles[slow]))
     assert rows[fast]["log10_k_pred"] > rows[slow]["log10_k_pred"]
 
 
+@pytest.mark.parametrize("slow", ["furan", "mefuran", "thiophene", "nmp", pytest.param("anthracene", marks=(
+    pytest.mark.xfail(strict=True, reason="GFN2-xTB puts anthracene's 9,10 saddle about 6 kJ/mol below "
+                      "cyclopentadiene's: a known failure of the fast level, which the refined level "
+                      "(docs/validation.md) does not share; strict, so a fix shows up")))])
+def test_heteroaromatic_and_acene_dienes_below_cyclopentadiene(panel, slow):
+    # with maleic anhydride furans add slowly and reversibly, thiophene and pyrroles give no
+    # normal cycloadduct, anthracene needs hot xylene where cyclopentadiene reacts at 0 degC
+    # (common practice); reached through the located barrier, no rule for classes
+    rows, _ = _pred(panel)
+    assert rows[slow]["barrier_kJmol"] > rows["cpd"]["barrier_kJmol"]
+    assert rows[slow]["log10_k_pred"] < rows["cpd"]["log10_k_pred"]
+
+
+def test_every_ranked_row_has_a_verified_saddle(panel):
+    rows, _ = _pred(panel)
+    for key, r in rows.items():
+        if r["status"] == "ok":
+            assert r["ts_verified"] is True and r["ts_imag_cm1"] < -100, key
+            assert np.isfinite(r["barrier_kJmol"]), key
+
+
 def test_di_tert_butyl_at_the_bottom_and_locked_s_trans_not_ranked(panel):
-    rows = _pred(panel)
+    # 2,3-di-tert-butylbutadiene cannot reach s-cis and does not react (common practice)
+    rows, _ = _pred(panel)
     ranked = {k: r for k, r in rows.items() if r["status"] == "ok"}
     assert max(int(r["rank"]) for r in ranked.values()) == int(ranked["dtb"]["rank"])
     assert rows["mch"]["status"] == "locked_s_trans"
@@ -55,15 +89,14 @@ def test_di_tert_butyl_at_the_bottom_and_locked_s_trans_not_ranked(panel):
 
 
 def test_model_on_the_reference_set(panel):
-    # observed with the shipped reference set (entered from memory): LOO Spearman 0.61;
-    # the floor guards against a regression of the descriptors
-    cfg, cache = panel
-    _, _, summary = rank_in_process(cfg, cache_dir=cache)
+    rows, summary = _pred(panel)
     assert summary["n_reference"] == 16
-    assert summary["cv_spearman"] >= 0.5
-    assert summary["cv_rmse_log10k"] <= 1.0
-    # the free penalty coefficient agrees with the physical -1/(RT ln 10) within 3 standard errors
-    phys = summary["physical_penalty_coefficient"]
-    assert abs(summary["ols_penalty_coefficient"] - phys) <= 3 * summary["ols_penalty_coefficient_se"]
-    assert summary["coefficients"]["homo_eV"] > 0          # electron-rich dienes react faster
-    assert summary["coefficients"]["distortion_kJmol"] < 0
+    y = np.array(list(REFERENCE_Y.values()))
+    # the model must beat predicting the mean of the reference values: the leave-one-out
+    # RMSE of that null model is sd(y) * sqrt(n / (n - 1))
+    null = y.std(ddof=0) * np.sqrt(len(y) / (len(y) - 1))
+    assert summary["nested_cv"]["cv_rmse_log10k"] < null
+    # a higher barrier means a slower reaction (transition-state theory), and the fitted slope
+    # is flatter than -1/(RT ln 10): GFN2-xTB barriers spread too widely (they are far too low)
+    b = summary["coefficients"]["barrier_kJmol"]
+    assert summary["physical_slope_per_kJmol"] < b < 0

@@ -32,8 +32,9 @@ def test_report_is_self_contained_and_escaped(run_dir):
     html = (run_dir / "results" / "report.html").read_text()
     assert NASTY_ID not in html and "&lt;script&gt;alert(&#x27;x&#x27;)&lt;/script&gt;" in html
     assert "<b>bold</b>" not in html
-    for needle in ('src="http', "src='http", 'href="http', "href='http", "url(http", "<script"):
+    for needle in ('src="http', "src='http", 'href="http', "href='http", "url(http", "<script src", "@import"):
         assert needle not in html
+    assert "default-src 'none'" in html                 # the page may load nothing from anywhere
     assert "1,3-butadiene is a carcinogen" in html and "safety data sheet" in html
     assert html.count("data-row=") == len(LIBRARY)     # a row per input record
     for status in ("invalid_smiles", "locked_s_trans"):
@@ -45,8 +46,11 @@ def test_sdf_read_by_rdkit_and_open_babel(run_dir):
     sdf = run_dir / "results" / "dienes.sdf"
     ranked = [r for r in _ranking(run_dir) if r["rank"]]
     mols = [m for m in Chem.SDMolSupplier(str(sdf), removeHs=False)]
-    assert len(mols) == 2 * len(ranked) and all(m is not None for m in mols)
-    assert {m.GetProp("conformer") for m in mols} == {"planar s-cis", "global minimum"}
+    assert len(mols) == 3 * len(ranked) and all(m is not None for m in mols)
+    assert {m.GetProp("conformer") for m in mols} == {"planar s-cis", "global minimum", "transition structure"}
+    ts = [m for m in mols if m.GetProp("conformer") == "transition structure"]
+    assert all(m.GetNumAtoms() > 15 for m in ts)   # diene and dienophile together
+    assert all(m.HasProp("in_domain") for m in mols)
     assert all(m.GetConformer().Is3D() for m in mols)
     butadiene = [m for m in mols if m.GetProp("id") == "R-1"]
     assert float(butadiene[0].GetProp("scis_penalty_kJmol")) == pytest.approx(
@@ -92,6 +96,31 @@ def test_report_in_a_real_browser(run_dir):
         assert len(sizes) >= 4 + 3 and min(sizes) > 10       # depictions and plots are drawn
         errors = [e for e in driver.get_log("browser") if e["level"] == "SEVERE"]
         assert errors == []
+        # the scoring diene unit is numbered in its drawing (C1-C2-C3-C4 as in the site label)
+        notes = driver.execute_script(
+            "return Array.from(document.querySelectorAll('#ranking tr[data-row] td.depict')).map("
+            "td => td.querySelectorAll('[class*=note]').length)")
+        assert max(notes) >= 4
+        # filtering by status leaves only those rows visible
+        driver.execute_script("var s=document.getElementById('f-status'); s.value='invalid_smiles';"
+                              "s.dispatchEvent(new Event('change'));")
+        visible = driver.execute_script(
+            "return Array.from(document.querySelectorAll('#ranking tbody tr')).filter("
+            "r => r.style.display !== 'none').map(r => r.dataset.status)")
+        assert visible == ["invalid_smiles"]
+        driver.execute_script("var s=document.getElementById('f-status'); s.value='';"
+                              "s.dispatchEvent(new Event('change'));")
+        # sorting by the id column orders the rows by id
+        driver.execute_script("document.querySelectorAll('#ranking thead th')[2].click()")
+        ids = driver.execute_script(
+            "return Array.from(document.querySelectorAll('#ranking tbody tr')).map(r => r.cells[2].firstChild.textContent)")
+        assert ids == sorted(ids)
+        # the compact view hides the drawings
+        driver.execute_script("var c=document.getElementById('f-compact'); c.click();")
+        shown = driver.execute_script(
+            "return Array.from(document.querySelectorAll('td.depict')).filter(td => td.offsetParent !== null).length")
+        assert shown == 0
+        driver.execute_script("document.getElementById('f-compact').click()")
         png = driver.get_screenshot_as_png()
     finally:
         driver.quit()
@@ -111,13 +140,36 @@ def test_console_rank_prints_the_top(run_dir, tmp_path):
                           "--workdir", str(work), "--cores", "2", "--quiet"],
                          capture_output=True, text=True, timeout=900)
     assert out.returncode == 0, out.stderr[-3000:]
-    assert "2 input rows: 2 ranked ok" in out.stdout
+    assert "2 input rows: 2 ok" in out.stdout
+    assert "ranking for dienophile" in out.stdout
     assert "M-2" in out.stdout.split("top")[1]
-    assert "report:" in out.stdout
+    assert "report.html" in out.stdout
+
+
+def test_console_errors_go_to_stderr_with_a_nonzero_exit(tmp_path, capsys):
+    lib = tmp_path / "lib.txt"
+    lib.write_text("C=CC=C x\n")
+    assert cli.main(["rank", str(lib)]) == 2
+    err = capsys.readouterr().err
+    assert "unknown file type '.txt'" in err and err.startswith("dienes:")
+    assert cli.main(["look", "C=CC=C", "--dienophile", "C=O"]) == 2
+    assert "hetero-dienophiles" in capsys.readouterr().err
+    with pytest.raises(SystemExit) as exc:
+        cli.main(["--version"])
+    assert exc.value.code == 0 and "dienes" in capsys.readouterr().out
+
+
+def test_console_names_the_log_of_a_failed_job(tmp_path):
+    (tmp_path / ".snakemake" / "log").mkdir(parents=True)
+    (tmp_path / ".snakemake" / "log" / "x.snakemake.log").write_text(
+        "Error in rule compute_structures:\n    jobid: 3\n    log: logs/structures/abc.log "
+        "(check log file(s) for error details)\n")
+    assert cli.failed_logs(tmp_path) == [f"compute_structures: {tmp_path / 'logs/structures/abc.log'}"]
 
 
 def test_console_look(capsys):
     assert cli.main(["look", "C/C=C\\C=C"]) == 0
     text = capsys.readouterr().out
     assert "s-cis penalty" in text and "HOMO" in text and "relaxed torsion profile" in text
+    assert "barrier" in text and "imaginary mode" in text
     assert text.count("kJ/mol |") == 13                      # 0..180 deg in 15 deg steps

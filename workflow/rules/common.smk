@@ -22,7 +22,7 @@ if workflow.is_main_process:
     moved = runlock.quarantine_invalid(sorted(Path("results").glob("structures/*.json"))
                                        + sorted(Path("results").glob("transition/*.json")))
     _stale = dienes_run.stale_manifest(MANIFEST)
-    if moved or _stale:
+    if dienes_run.drop_stale_batches() or moved or _stale:
         Path(MANIFEST).unlink(missing_ok=True)
         Path("results/ranking.csv").unlink(missing_ok=True)
 

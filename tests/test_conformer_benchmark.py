@@ -1,0 +1,25 @@
+"""The conformer protocol against an exhaustive reference search: the quick mode of
+benchmarks/conformer_protocol.py (slow). Only accuracy is asserted here; the speed
+figures it prints are for people, not for a timed test."""
+import os
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from .conftest import REPO
+
+pytestmark = pytest.mark.slow
+
+
+def test_quick_benchmark_penalties_agree_with_the_exhaustive_search():
+    out = subprocess.run([sys.executable, str(Path(REPO) / "benchmarks" / "conformer_protocol.py"), "--quick"],
+                         capture_output=True, text=True, timeout=1200, env=dict(os.environ, OMP_NUM_THREADS="1"))
+    assert out.returncode == 0, out.stderr[-3000:]
+    m = re.search(r"speedup_vs_exhaustive=([\d.]+) penalty_agreement=([\d.]+) max_penalty_error_kJmol=([\d.]+)",
+                  out.stdout)
+    assert m, out.stdout[-2000:]
+    # targets of the protocol: every penalty within 1 kJ/mol of the exhaustive search, none beyond 3
+    assert float(m.group(2)) >= 0.95 and float(m.group(3)) <= 3.0, out.stdout

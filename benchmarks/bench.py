@@ -44,6 +44,10 @@ def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--backend", default="xtb-python")
     ap.add_argument("--config", default=os.path.join(os.path.dirname(__file__), "..", "config", "config.yaml"))
+    ap.add_argument("--refine", type=int, default=0, metavar="N",
+                    help="also time the density-functional refinement of the first N panel dienes "
+                         "(minutes each) at the config's refine level")
+    ap.add_argument("--threads", type=int, default=1, help="threads for the refinement")
     args = ap.parse_args()
     config = cfg.load(args.config)
     config["backend"] = args.backend
@@ -54,6 +58,7 @@ def main():
     print(f"{'smiles':<26}{'status':<10}{'time_s':>8}{'x_base':>10}{'grads':>7}{'ms/grad':>9}"
           f"{'ts_s':>10}{'x_base':>9}{'ts_grads':>9}")
     times, grads, ts_times = [], [], []
+    refine_rows = []
     for smi in PANEL:
         t = time.perf_counter()
         r = compute_structure(smi, st)
@@ -63,6 +68,15 @@ def main():
         ds = time.perf_counter() - t
         times.append(dt)
         ts_times.append(ds)
+        if len(refine_rows) < args.refine:
+            from dienes.refine import level_settings, refine_dienophile, refine_pair
+            level = level_settings(config["refine"])
+            if not refine_rows:
+                dph_refined = refine_dienophile(dph, level, args.threads)
+            t = time.perf_counter()
+            rr = refine_pair(r, ts, dph_refined, level, args.threads)
+            refine_rows.append((smi, len(r["geometry"]["numbers"]), time.perf_counter() - t,
+                                rr.get("n_single_points", 0), rr["status"]))
         grads.append(r.get("n_gradients", 0))
         print(f"{smi:<26}{r['status']:<10}{dt:8.2f}{dt / base:10.0f}{grads[-1]:7d}"
               f"{1e3 * dt / max(grads[-1], 1):9.2f}{ds:10.2f}{ds / base:9.0f}{ts.get('n_gradients', 0):9d}")
@@ -70,6 +84,9 @@ def main():
     print(f"median per diene: {statistics.median(times):.2f} s = {statistics.median(times) / base:.0f} x baseline; "
           f"median gradient calls {statistics.median(grads):.0f}; total {sum(times):.1f} s; "
           f"peak RSS {peak_mb:.0f} MB")
+    for smi, n_atoms, dt, n_sp, status in refine_rows:
+        print(f"refinement {smi} ({n_atoms} atoms + dienophile; {n_sp} single points, {status}): "
+              f"{dt:.0f} s = {dt / base:.0f} x baseline")
     print(f"transition-structure step (with {config['dienophile']}): median {statistics.median(ts_times):.2f} s "
           f"= {statistics.median(ts_times) / base:.0f} x baseline; total {sum(ts_times):.1f} s")
 

@@ -228,7 +228,11 @@ def fit_reference(reference: list[dict], computed: Computed, config: dict, run_d
     table.loc[used.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
     ols = mdl.fit(X, y, features, "ols", T_ref)
     physical = -mdl.log10_units_per_kjmol(T_ref)
-    summary = {"level": "refined" if suffix else "GFN2-xTB", "n_reference": int(len(used)),
+    level_name = "GFN2-xTB"
+    if suffix:
+        names = used.get("refined_level", pd.Series(dtype=object)).dropna()
+        level_name = str(names.iloc[0]) if len(names) else "refined"
+    summary = {"level": level_name, "n_reference": int(len(used)),
                "features": features, "base_features": base, "candidates": cands, "selection": trail,
                "dienophile_terms": dict(zip(term_names, terms)), "base_dienophile": base_dph,
                "run_dienophile": run_dienophile,

@@ -45,7 +45,8 @@ class SCFFailure(RuntimeError):
 
 def _energy(numbers, positions, level, threads, what: str, log: list) -> float:
     r = dft_energy(numbers, positions, level, threads=threads)
-    log.append({"what": what, "energy_kJmol": round(r.energy_kJmol, 4), "converged": r.converged,
+    log.append({"what": what, "energy_kJmol": round(r.energy_kJmol, 4),
+                "dispersion_kJmol": round(r.dispersion_kJmol, 4), "converged": r.converged,
                 "cycles": r.cycles, "wall_s": r.wall_s})
     if not r.converged:
         raise SCFFailure(f"SCF did not converge for the {what}")

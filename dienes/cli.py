@@ -182,29 +182,29 @@ def _look(args) -> int:
 
 
 def main(argv=None) -> int:
-    fmt = argparse.ArgumentDefaultsHelpFormatter
-    ap = argparse.ArgumentParser(prog="dienes", formatter_class=fmt,
+    ap = argparse.ArgumentParser(prog="dienes",
                                  description="Rank conjugated dienes by predicted Diels-Alder reactivity.")
     ap.add_argument("--version", action="version", version=f"dienes {__version__}")
     sub = ap.add_subparsers(dest="command", required=True)
 
-    class RankFormatter(argparse.ArgumentDefaultsHelpFormatter, argparse.RawDescriptionHelpFormatter):
-        pass
+    class RankFormatter(argparse.RawDescriptionHelpFormatter):
+        """Examples kept as written; every option's help states its default itself."""
 
     r = sub.add_parser("rank", formatter_class=RankFormatter, epilog=RANK_EXAMPLES,
                        help="rank a library with the workflow (CSV id,smiles; .smi; .sdf)",
                        description="Rank a diene library with the Snakemake workflow and print the top.")
     r.add_argument("library", help="the diene library file")
     r.add_argument("--dienophile", help="dienophile SMILES (C=C or C#C; default: the config's, maleic anhydride)")
-    r.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use")
+    cores = os.cpu_count() or 1
+    r.add_argument("--cores", type=int, default=cores, help=f"CPU cores to use (default: all, {cores} here)")
     r.add_argument("--refine", type=int, metavar="N",
                    help="refine the N best dienes (and the reference set) with a density-functional "
-                        "single point; several minutes per diene (default: the config's refine.top, 0)")
-    r.add_argument("--workdir", default=".", help="where results/ and logs/ go")
+                        "single point; minutes per diene (default: the config's refine.top, 0 = off)")
+    r.add_argument("--workdir", default=".", help="where results/ and logs/ go (default: the current directory)")
     r.add_argument("--set", action="append", metavar="KEY=VALUE",
-                   help="any other config value, e.g. temperature_K=313.15 (repeatable)")
-    r.add_argument("--top", type=int, default=15, help="how many ranked rows to print")
-    r.add_argument("--quiet", action="store_true", help="less Snakemake output")
+                   help="any other config value, e.g. temperature_K=313.15 (repeatable; default: none)")
+    r.add_argument("--top", type=int, default=15, help="how many ranked rows to print (default: 15)")
+    r.add_argument("--quiet", action="store_true", help="less Snakemake output (default: off)")
     r.set_defaults(func=_rank)
     lk = sub.add_parser("look", formatter_class=RankFormatter, epilog=LOOK_EXAMPLES,
                         help="analyse one SMILES now, without a workflow run",
@@ -213,8 +213,8 @@ def main(argv=None) -> int:
     lk.add_argument("smiles", help="the diene SMILES")
     lk.add_argument("--dienophile", help="dienophile SMILES (default: the config's, maleic anhydride)")
     lk.add_argument("--backend", choices=["xtb-python", "tblite"], help="GFN2-xTB backend (default: the config's)")
-    lk.add_argument("--no-ts", action="store_true", help="skip the transition-structure search")
-    lk.add_argument("--no-profile", action="store_true", help="skip the torsion profile")
+    lk.add_argument("--no-ts", action="store_true", help="skip the transition-structure search (default: search)")
+    lk.add_argument("--no-profile", action="store_true", help="skip the torsion profile (default: scan)")
     lk.set_defaults(func=_look)
     args = ap.parse_args(argv)
     try:

@@ -3,6 +3,7 @@ structure, run one right after the other in fresh directories of this machine.
 
     python benchmarks/throughput.py [--cores 2] [--library config/demo_library.csv]
         [--baseline-checkout DIR]   # also time another checkout's Snakefile (e.g. an older commit)
+        [--keep DIR]                # keep the run directories
 
 Prints each run's wall time, jobs started, per-structure compute summed from the
 batch summaries, the ratio of the runs, and the throughput in dienes per core-hour.
@@ -58,10 +59,13 @@ def main():
     ap.add_argument("--cores", type=int, default=2)
     ap.add_argument("--library", default=str(REPO / "config" / "demo_library.csv"))
     ap.add_argument("--baseline-checkout", default=None, help="another checkout to time first")
+    ap.add_argument("--keep", default=None, metavar="DIR",
+                    help="keep the run directories under DIR (e.g. to refine the batched run afterwards)")
     args = ap.parse_args()
     library = Path(args.library).resolve()
     n_rows = sum(1 for _ in open(library)) - 1
-    root = Path(tempfile.mkdtemp(prefix="dienes-throughput-"))
+    root = Path(args.keep).resolve() if args.keep else Path(tempfile.mkdtemp(prefix="dienes-throughput-"))
+    root.mkdir(parents=True, exist_ok=True)
     results = {}
     if args.baseline_checkout:
         base = Path(args.baseline_checkout).resolve()
@@ -84,7 +88,8 @@ def main():
         print(f"ratio baseline checkout / batched = {results['baseline checkout']['wall_s'] / batched['wall_s']:.2f}")
     print(f"throughput: {n_rows / (batched['wall_s'] * args.cores / 3600):.0f} library rows per core-hour "
           f"(wall time x cores; {library.name}, {n_rows} rows, reference set included in the work)")
-    shutil.rmtree(root, ignore_errors=True)
+    if not args.keep:
+        shutil.rmtree(root, ignore_errors=True)
 
 
 if __name__ == "__main__":

@@ -258,37 +258,36 @@ def locate_site(screened: Screened, complex_numbers, n_diene_atoms: int, energie
         return {"n_gradients": complex_mol.n_calls + diene_mol.n_calls + dph_mol.n_calls - n_start,
                 "wall_time_s": round(time.perf_counter() - t0, 3)}
 
+    def decompose(positions_A, e_total):
+        """Barrier and its distortion/interaction parts for a complex structure (kJ/mol)."""
+        e_diene_frozen = diene_mol.singlepoint(positions_A[:nd]).energy_kJmol
+        e_dph_frozen = dph_mol.singlepoint(positions_A[nd:]).energy_kJmol
+        return {
+            "barrier_kJmol": round(e_total - e_ref, 3),
+            "intrinsic_barrier_kJmol": round(e_total - energies["diene_planar"] - energies["dienophile_min"], 3),
+            "distortion_kJmol": round(e_diene_frozen - energies["diene_min"], 3),
+            "dienophile_distortion_kJmol": round(e_dph_frozen - energies["dienophile_min"], 3),
+            "interaction_kJmol": round(e_total - e_diene_frozen - e_dph_frozen, 3)}
+
     if chosen is None:
         e_model, ap, r = screened.models[0]
         why = ("no saddle search converged with both forming bonds in "
                f"{SADDLE_BOND_RANGE_A[0]}-{SADDLE_BOND_RANGE_A[1]} A" if not attempts
                else "no located saddle passed the checks (" + "; ".join(attempts) + ")")
         # the fixed-bond model structure stands in for the saddle, decomposed the same way
-        e_diene_frozen = diene_mol.singlepoint(r.positions_A[:nd]).energy_kJmol
-        e_dph_frozen = dph_mol.singlepoint(r.positions_A[nd:]).energy_kJmol
         return out | {
             "status": "ts_unverified", "message": why, "approach": ap.name, "ts_verified": False,
-            "barrier_kJmol": round(e_model - e_ref, 3), "model_barrier_kJmol": round(e_model - e_ref, 3),
-            "intrinsic_barrier_kJmol": round(e_model - energies["diene_planar"] - energies["dienophile_min"], 3),
-            "distortion_kJmol": round(e_diene_frozen - energies["diene_min"], 3),
-            "dienophile_distortion_kJmol": round(e_dph_frozen - energies["dienophile_min"], 3),
-            "interaction_kJmol": round(e_model - e_diene_frozen - e_dph_frozen, 3),
+            "model_barrier_kJmol": round(e_model - e_ref, 3), **decompose(r.positions_A, e_model),
             "pairs": [list(p) for p in ap.pairs],
             "positions_A": np.round(r.positions_A, 5).tolist(), "n_diene_atoms": nd} | spent()
     cand, check = chosen
     ts_A = cand["ts"].positions_A
     e_ts = cand["ts"].energy_eV * EV_KJMOL
-    e_diene_frozen = diene_mol.singlepoint(ts_A[:nd]).energy_kJmol
-    e_dph_frozen = dph_mol.singlepoint(ts_A[nd:]).energy_kJmol
     e_adduct = check.adduct.energy_eV * EV_KJMOL
     d1, d2 = (_distance(ts_A, p) for p in cand["approach"].pairs)
     return out | {
         "status": "ok", "message": "", "approach": cand["approach"].name, "ts_verified": True,
-        "barrier_kJmol": round(e_ts - e_ref, 3),
-        "intrinsic_barrier_kJmol": round(e_ts - energies["diene_planar"] - energies["dienophile_min"], 3),
-        "distortion_kJmol": round(e_diene_frozen - energies["diene_min"], 3),
-        "dienophile_distortion_kJmol": round(e_dph_frozen - energies["dienophile_min"], 3),
-        "interaction_kJmol": round(e_ts - e_diene_frozen - e_dph_frozen, 3),
+        **decompose(ts_A, e_ts),
         "reaction_energy_kJmol": round(e_adduct - e_ref, 3),
         "complex_kJmol": round(check.reactant_side.energy_eV * EV_KJMOL - e_ref, 3),
         "model_barrier_kJmol": round(cand["model_kJmol"] - e_ref, 3),

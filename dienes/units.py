@@ -23,6 +23,7 @@ PLANCK_J_S = 6.62607015e-34             # h in J s
 ELECTRONVOLT_J = 1.602176634e-19        # 1 eV in J
 ATOMIC_MASS_KG = 1.66053906660e-27      # 1 Dalton (amu) in kg
 SPEED_OF_LIGHT_CM_S = 2.99792458e10     # c in cm/s
+AVOGADRO_PER_MOL = 6.02214076e23        # N_A in 1/mol
 
 
 def angstrom_to_bohr(x_angstrom):

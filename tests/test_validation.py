@@ -29,7 +29,8 @@ def test_backends_agree(check):
 
 
 def _observed_in_doc():
-    text = validation.DOC_PATH.read_text().split(validation.REFINED_MARK)[0]
+    text = validation.generated_block(validation.DOC_PATH.read_text())
+    text = text.split(validation.REFINED_HEADER.strip().splitlines()[0])[0]
     out = {}
     for line in text.splitlines():
         cells = [c.strip() for c in line.strip().strip("|").split("|")]
@@ -46,10 +47,23 @@ def test_document_matches_the_code():
         observed = c.observe({})
         assert doc[c.name] == pytest.approx(observed, abs=0.011, rel=0.05), (
             f"{c.name}: docs say {doc[c.name]}, code gives {observed}; run python -m dienes.validation")
-    assert not re.search(r"\|\s*NO\s*\|", validation.DOC_PATH.read_text().split(validation.REFINED_MARK)[0])
+    assert not re.search(r"\|\s*NO\s*\|", validation.generated_block(validation.DOC_PATH.read_text()).split(
+        validation.REFINED_HEADER.strip().splitlines()[0])[0])
+
+
+def test_regenerating_keeps_the_hand_written_sections():
+    # the generated block is replaced, everything outside it kept word for word
+    old = (validation.TITLE + validation.BEGIN_MARK + "\nold table\n" + validation.END_MARK
+           + "\n\n## The refined level: how the default was chosen\n\nhand-written text\n")
+    new = validation.replace_generated(old, "new table")
+    assert "new table" in new and "old table" not in new
+    assert new.endswith("## The refined level: how the default was chosen\n\nhand-written text\n")
+    # a document without a block keeps its text after the new block
+    fresh = validation.replace_generated(validation.TITLE + "notes\n", "table")
+    assert fresh.index("table") < fresh.index("notes")
 
 
 def test_every_check_says_why_its_tolerance():
     for c in validation.checks() + validation.backend_checks() + validation.refined_checks(
-            {"method": "b3lyp", "basis": "def2-svp", "dispersion": "d3bj", "solvent": "none"}):
+            {"method": "b3lyp", "basis": "def2-svp", "dispersion": "none", "solvent": "none"}):
         assert c.source and c.why, c.name

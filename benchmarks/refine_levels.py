@@ -1,22 +1,42 @@
-"""Compare density-functional levels for the refinement on the reference set.
+"""Choose the refined level by evidence: price the same GFN2-xTB structures at several
+levels and compare what each gets right.
 
-Runs the project's own refinement (dienes.refine) at several levels on the
-GFN2-xTB structures of a finished run (its results/ directory must hold the
-reference dienes and their transition structures), then fits the barrier
-model at each level and prints leave-one-out figures and the outside checks
-that decide the default level. Refined results are cached per level under
-<results>/refined_study/, so a rerun only computes what is new.
+For every level (a density functional and basis, priced with the pipeline's own
+dienes.refine on the GFN2-xTB structures of a finished run) and every barrier
+variant built from it:
 
-    python benchmarks/refine_levels.py --results results --threads 2 \
-        --level b3lyp/def2-svp/d3bj/none --level b3lyp/def2-svp/d3bj/1,4-dioxane
+- E        electronic barrier (what the pipeline ranks by),
+- E+D3     with Grimme's D3 dispersion added (a geometry term: no extra SCF),
+- E+dG     with GFN2-xTB quasi-RRHO thermal corrections at the reference temperature
+           (1 mol/L standard state; TS minus the priced diene minimum minus the dienophile),
+- E+dG(ens) the diene as a Boltzmann ensemble of its priced minima (each with its own
+           thermal correction): a flexible diene's conformer mixing counts,
+- E+D3+dG(ens),
 
-A level is method/basis/dispersion/solvent ('none' for no dispersion or gas phase).
+it reports on the reference set (one slope and an intercept, leave-one-out, the
+variant of the pipeline's model chosen inside the fit): RMSE, Spearman, pairwise
+order, nested leave-one-out, the slope against transition-state theory; the
+known orders with maleic anhydride; and, with --gas-phase, the measured gas-phase
+kinetics (tests/data/gas_phase_kinetics.csv): errors of the computed activation
+enthalpy and free energy against Ea - 2RT and the Eyring free energy at the middle
+of each measured range, and the order of the pairs measured 8 kJ/mol or more apart.
+Cost: median wall time of a transition-structure single point per level.
+
+Results are cached: single points under <results>/refined/<level hash>/ (the
+pipeline's own layout, so a later run at the same level reuses them), GFN2-xTB
+Hessians under <results>/thermo/, gas-phase structures under <results>/gas_phase/.
+
+    python benchmarks/refine_levels.py --results results --level b3lyp/def2-svp \\
+        --level m062x/def2-svp/grid=3 --level pbe/def2-svp --gas-phase --json levels.json
 """
 
 from __future__ import annotations
 
 import argparse
+import json
+import math
 import os
+import statistics
 import time
 from pathlib import Path
 
@@ -25,116 +45,282 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 import numpy as np  # noqa: E402
 from scipy import stats  # noqa: E402
 
-from dienes import ranking  # noqa: E402
+from dienes import model as mdl  # noqa: E402
+from dienes import refine, thermo  # noqa: E402
 from dienes import settings as cfg  # noqa: E402
-from dienes.pipeline import read_json, write_json  # noqa: E402
-from dienes.refine import level_settings, refine_dienophile, refine_pair  # noqa: E402
-from dienes.run import load_computed  # noqa: E402
+from dienes.backends import DFTLevel, Molecule, d3_dispersion_kJmol  # noqa: E402
+from dienes.kinetics import pair_order_fraction, read_measurements  # noqa: E402
+from dienes.pipeline import backend_settings, compute_dienophile, compute_structure, read_json, write_json  # noqa: E402
+from dienes.run import refined_dienophile_path, refined_path, refined_structure_path  # noqa: E402
+from dienes.transition import transition_states_for_structure  # noqa: E402
+from dienes.units import rt_kjmol  # noqa: E402
 
-CONFIG = Path(__file__).resolve().parent.parent / "config" / "config.yaml"
-# orders every level is checked against (relative rates with maleic anhydride; the
-# reference file's provenance says how sure each is)
+ROOT = Path(__file__).resolve().parent.parent
+CONFIG = ROOT / "config" / "config.yaml"
+GAS_PHASE = ROOT / "tests" / "data" / "gas_phase_kinetics.csv"
+# orders checked at every level, with maleic anhydride (faster first; common practice and the
+# reference set): name in the reference file or id in the demo library
 FASTER_THAN = [("cyclopentadiene", "2,3-dimethyl-1,3-butadiene"), ("cyclopentadiene", "2-tert-butyl-1,3-butadiene"),
-               ("cyclopentadiene", "1,3-butadiene"), ("(E)-1,3-pentadiene", "(Z)-1,3-pentadiene")]
+               ("cyclopentadiene", "2-phenyl-1,3-butadiene"), ("cyclopentadiene", "anthracene"),
+               ("9,10-dimethylanthracene", "anthracene"), ("furan", "thiophene"),
+               ("(E)-1,3-pentadiene", "(Z)-1,3-pentadiene"), ("cyclopentadiene", "1,3-butadiene")]
+EXTRA_NAMES = ("anthracene", "9,10-dimethylanthracene", "furan", "thiophene")
+D3_VERSION = {"m062x": "d3zero", "m06-2x": "d3zero"}
+VARIANTS = ("E", "E+D3", "E+dG", "E+dG(ens)", "E+D3+dG(ens)")
 
 
 def parse_level(text: str) -> dict:
-    method, basis, disp, solvent = (text.split("/") + ["none", "none"])[:4]
-    return {"method": method, "basis": basis, "dispersion": disp, "solvent": solvent}
-
-
-def refine_reference(results: Path, manifest: dict, level_cfg: dict, threads: int) -> dict:
-    """Refined pair results of every usable reference row at one level (cached)."""
-    config = cfg.load(CONFIG) | {"refine": level_cfg | {"top": 1}}
-    level = level_settings(config["refine"])
-    rhash = cfg.refine_hash(config)
-    out_dir = results / "refined_study" / rhash
-    out_dir.mkdir(parents=True, exist_ok=True)
-    write_json({"level": level.label(), **level_cfg}, out_dir / "level.json")
-    dph_done = {}
-    out = {}
-    for rec in manifest["reference_records"]:
-        if rec["status"] != "ok" or not rec["isomers"]:
-            continue
-        key, d = rec["isomers"][0]["key"], rec["dienophile"]
-        stem = f"{key}__{d['thash']}"
-        path = out_dir / f"{stem}.json"
-        if d["dhash"] not in dph_done:
-            dpath = out_dir / f"dienophile_{d['dhash']}.json"
-            if not dpath.is_file():
-                write_json(refine_dienophile(read_json(results / "dienophiles" / f"{d['dhash']}.json"),
-                                             level, threads), dpath)
-            dph_done[d["dhash"]] = read_json(dpath)
-        if not path.is_file():
-            t0 = time.perf_counter()
-            r = refine_pair(read_json(results / "structures" / f"{key}.json"),
-                            read_json(results / "transition" / f"{stem}.json"), dph_done[d["dhash"]],
-                            level, threads)
-            write_json(r, path)
-            print(f"  {rec['id']:<8} {rec['smiles']:<22} {r['status']:<10} barrier "
-                  f"{r.get('barrier_refined_kJmol', float('nan')):7.1f}  penalty "
-                  f"{r.get('scis_penalty_refined_kJmol', float('nan')):6.1f} kJ/mol  "
-                  f"({time.perf_counter() - t0:.0f} s)", flush=True)
-        out[stem] = read_json(path)
+    method, basis, *opts = text.split("/")
+    out = {"rows": "all", "method": method, "basis": basis, "dispersion": "none", "solvent": "none"}
+    for o in opts:
+        k, v = o.split("=")
+        out[{"grid": "grid_level"}.get(k, k)] = int(v) if v.isdigit() else v
     return out
 
 
-def evaluate(manifest: dict, computed, refined: dict, config: dict) -> dict:
-    computed.refined = refined
-    fit, summary, table = ranking.fit_reference(manifest["reference_records"], computed, config,
-                                                config["dienophile"], suffix="_refined")
-    used = table[table["used"]]
-    bar = {n: float(used.loc[used["id"] == rid, "barrier_refined_kJmol"].iloc[0])
-           for n, rid in names_to_ids(manifest).items() if (used["id"] == rid).any()}
-    orders = {f"{a} faster than {b}": bool(bar.get(a, np.nan) < bar.get(b, np.nan))
-              for a, b in FASTER_THAN if a in bar and b in bar}
-    return {"summary": summary, "barriers": bar, "orders": orders, "table": table}
+# ------------------------------------------------------------------ the pairs
+
+def demo_pairs(results: Path, manifest: dict) -> dict:
+    """name -> (structure key, transition stem) for the reference rows and a few library rows."""
+    out = {}
+    for rec in manifest["reference_records"]:
+        if rec["status"] == "ok":
+            key = rec["isomers"][0]["key"]
+            out[rec["extra"].get("name", rec["id"])] = (key, f"{key}__{rec['dienophile']['thash']}", rec)
+    for rec in manifest["records"]:
+        name = rec["extra"].get("name", "")
+        if name in EXTRA_NAMES and rec["status"] == "ok":
+            key = rec["isomers"][0]["key"]
+            out[name] = (key, f"{key}__{rec['dienophile']['thash']}", rec)
+    return out
 
 
-def names_to_ids(manifest):
-    return {r["extra"].get("name", r["id"]): r["id"] for r in manifest["reference_records"]}
+def gas_phase_pairs(results: Path, config: dict, measurements) -> dict:
+    """(diene smiles, dienophile smiles) -> (structure key, stem, dienophile hash): GFN2-xTB
+    structures and transition structures computed with the pipeline's own functions."""
+    st = cfg.structure_settings(config)
+    base = results / "gas_phase"
+    out = {}
+    for m in measurements:
+        pair = (m.diene_smiles, m.dienophile_smiles)
+        if pair in out:
+            continue
+        from rdkit import Chem
+        key = cfg.structure_key(Chem.MolToInchiKey(Chem.MolFromSmiles(m.diene_smiles)), st)
+        dhash = cfg.dienophile_hash(config, m.dienophile_smiles)
+        stem = f"{key}__{cfg.transition_hash(config, m.dienophile_smiles)}"
+        spath, dpath, tpath = (base / "structures" / f"{key}.json", base / "dienophiles" / f"{dhash}.json",
+                               base / "transition" / f"{stem}.json")
+        if not spath.is_file():
+            write_json(compute_structure(m.diene_smiles, st, key=key), spath)
+        if not dpath.is_file():
+            write_json(compute_dienophile(m.dienophile_smiles, st), dpath)
+        if not tpath.is_file():
+            t0 = time.perf_counter()
+            r = transition_states_for_structure(read_json(spath), read_json(dpath), backend_settings(st),
+                                                config["transition_state"])
+            r["key"] = key
+            write_json(r, tpath)
+            print(f"  gas-phase TS {m.diene} + {m.dienophile}: {r['status']} "
+                  f"{[s.get('status') for s in r['sites'].values()]} ({time.perf_counter() - t0:.0f} s)", flush=True)
+        out[pair] = (key, stem, dhash)
+    return out
+
+
+# ----------------------------------------------------------- thermal terms
+
+def frequencies(numbers, positions, st, cache: Path) -> list[float]:
+    """GFN2-xTB harmonic wavenumbers (cm^-1) at a structure (cached by file name)."""
+    from dienes.optimize import backend_energy_forces
+    from dienes.saddle import analyse_vibrations
+    if cache.is_file():
+        return read_json(cache)["frequencies_cm1"]
+    mol = Molecule(numbers, backend_settings(st))
+    vib = analyse_vibrations(numbers, np.asarray(positions), backend_energy_forces(mol))
+    write_json({"frequencies_cm1": [round(float(f), 3) for f in vib.frequencies_cm1]}, cache)
+    return read_json(cache)["frequencies_cm1"]
+
+
+def g_corr(numbers, positions, freqs, T: float) -> dict:
+    from ase.data import atomic_masses
+    masses = [atomic_masses[int(z)] for z in numbers]
+    t = thermo.thermal_correction(freqs, masses, positions, T)
+    return {"G": t.free_energy_kJmol, "H": t.enthalpy_kJmol}
+
+
+# ------------------------------------------------------------------ pricing
+
+def price(results: Path, base: Path, level_cfg: dict, key: str, stem: str, dhash: str, threads: int) -> dict:
+    """Priced structure, dienophile and pair at one level (cached in the pipeline's layout)."""
+    config = cfg.load(CONFIG) | {"refine": level_cfg}
+    level = DFTLevel(refine.level_settings(config["refine"]), threads)
+    rhash = cfg.refine_hash(config)
+    sp, dp, pp = (refined_structure_path(results, key, rhash), refined_dienophile_path(results, dhash, rhash),
+                  refined_path(results, stem, rhash))
+    if not sp.is_file():
+        write_json(refine.price_structure(read_json(base / "structures" / f"{key}.json"), level), sp)
+    if not dp.is_file():
+        write_json(refine.price_dienophile(read_json(base / "dienophiles" / f"{dhash}.json"), level), dp)
+    if not pp.is_file():
+        r = refine.price_pair(read_json(sp), read_json(base / "transition" / f"{stem}.json"), read_json(dp), level)
+        write_json(r | {"stem": stem}, pp)
+    return {"structure": read_json(sp), "dienophile": read_json(dp), "pair": read_json(pp), "label": level.label()}
+
+
+def barrier_variants(priced: dict, structure: dict, dienophile: dict, dhash: str, transition: dict, st,
+                     base: Path, T: float, method: str) -> dict | None:
+    """Every barrier variant (kJ/mol) of one pair at one level, with its enthalpy twin."""
+    pair = priced["pair"]
+    ok = [(s["barrier_refined_kJmol"], lab) for lab, s in pair.get("sites", {}).items() if s.get("status") == "ok"]
+    if pair.get("status") != "ok" or not ok:
+        return None
+    e_bar, label = min(ok)
+    ts = transition["sites"][label]
+    numbers, tpos = transition["numbers"], ts["positions_A"]
+    geo = structure["geometry"]
+    minima = geo.get("low_minima_A") or [geo["minimum_A"]]
+    e_min = priced["structure"]["minima_kJmol"]
+    k_min = priced["structure"]["minimum_index"]
+    dgeo = dienophile["geometry"]
+    thermo_dir = base / "thermo"
+    f_ts = frequencies(numbers, tpos, st, thermo_dir / f"{pair['stem']}__{label}.json")
+    f_min = [frequencies(geo["numbers"], p, st, thermo_dir / f"{structure['key']}__min{k}.json")
+             for k, p in enumerate(minima)]
+    f_dph = frequencies(dgeo["numbers"], dgeo["minimum_A"], st, thermo_dir / f"dienophile_{dhash}.json")
+    c_ts = g_corr(numbers, tpos, f_ts, T)
+    c_min = [g_corr(geo["numbers"], p, f, T) for p, f in zip(minima, f_min)]
+    c_dph = g_corr(dgeo["numbers"], dgeo["minimum_A"], f_dph, T)
+    version = D3_VERSION.get(method.lower(), "d3bj")
+    disp = (d3_dispersion_kJmol(numbers, tpos, method, version)
+            - d3_dispersion_kJmol(geo["numbers"], minima[k_min], method, version)
+            - d3_dispersion_kJmol(dgeo["numbers"], dgeo["minimum_A"], method, version))
+    RT = rt_kjmol(T)
+    # the diene as a Boltzmann ensemble of its priced minima: G = -RT ln sum exp(-G_i / RT)
+    g_i = np.array([e + c["G"] for e, c in zip(e_min, c_min)])
+    g_ens = float(g_i.min() - RT * np.log(np.sum(np.exp(-(g_i - g_i.min()) / RT))))
+    g_low = e_min[k_min] + c_min[k_min]["G"]
+    e_ref = e_min[k_min]
+    dg = c_ts["G"] - c_min[k_min]["G"] - c_dph["G"]
+    dg_ens = dg + (g_low - g_ens)
+    dh = c_ts["H"] - c_min[k_min]["H"] - c_dph["H"]
+    return {"E": e_bar, "E+D3": e_bar + disp, "E+dG": e_bar + dg, "E+dG(ens)": e_bar + dg_ens,
+            "E+D3+dG(ens)": e_bar + disp + dg_ens, "dH": e_bar + dh, "dH+D3": e_bar + disp + dh,
+            "site": label, "dispersion": disp, "dG_corr": dg, "ensemble": g_low - g_ens, "e_min_ref": e_ref}
+
+
+# --------------------------------------------------------------- evaluation
+
+def reference_figures(names, x, y, T_ref) -> dict:
+    X = np.asarray(x, dtype=float)[:, None]
+    y = np.asarray(y, dtype=float)
+    feats = ["barrier_refined_kJmol"]
+    fit, comparison, y_cv = mdl.select(X, y, feats, T_ref)
+    nested = mdl.nested_cv({feats[0]: X[:, 0]}, y, feats, [], T_ref, 0)
+    ols = mdl.fit(X, y, feats, "ols", T_ref)
+    tst = -1.0 / (rt_kjmol(T_ref) * math.log(10.0))
+    return {"variant": fit.variant, **comparison[fit.variant], "nested_rmse": nested["cv_rmse_log10k"],
+            "nested_spearman": nested["cv_spearman"], "ols_slope_over_tst": ols.coef_per_unit[0] / tst,
+            "residuals": {n: float(a - b) for n, a, b in zip(names, y, y_cv)}}
 
 
 def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
-    ap.add_argument("--results", default="results", help="results/ of a finished run (default: results)")
-    ap.add_argument("--level", action="append", required=True, help="method/basis/dispersion/solvent")
+    ap.add_argument("--results", default="results", help="results/ of a finished demo run (default: results)")
+    ap.add_argument("--level", action="append", required=True, help="method/basis[/grid=N]")
     ap.add_argument("--threads", type=int, default=1)
+    ap.add_argument("--gas-phase", action="store_true", help="also the measured gas-phase kinetics")
+    ap.add_argument("--json", help="write every figure to this file")
     args = ap.parse_args()
     results = Path(args.results)
-    manifest = read_json(results / "manifest.json")
     config = cfg.load(CONFIG)
-    base_fit, base, _ = ranking.fit_reference(manifest["reference_records"], load_computed(manifest, results),
-                                              config, config["dienophile"])
-    print(f"GFN2-xTB model {base['features']} ({base['variant']}): LOO RMSE {base['cv_rmse_log10k']:.2f}, "
-          f"Spearman {base['cv_spearman']:.2f}, pairwise {base['cv_pairwise_accuracy']:.2f}")
-    rows = []
+    st = cfg.structure_settings(config)
+    manifest = read_json(results / "manifest.json")
+    pairs = demo_pairs(results, manifest)
+    measurements = read_measurements(GAS_PHASE) if args.gas_phase else []
+    gas = gas_phase_pairs(results, config, measurements) if measurements else {}
+    report = {}
     for text in args.level:
         lvl = parse_level(text)
-        print(f"level {text}:", flush=True)
-        t0 = time.perf_counter()
-        refined = refine_reference(results, manifest, lvl, args.threads)
-        ev = evaluate(manifest, load_computed(manifest, results), refined, config)
-        s = ev["summary"]
-        walls = [r.get("wall_time_s", 0.0) for r in refined.values()]
-        b = s["coefficients"].get("barrier_refined_kJmol", float("nan"))
-        rows.append((text, s, ev, float(np.median(walls)) if walls else 0.0))
-        print(f"  LOO RMSE {s['cv_rmse_log10k']:.2f}, Spearman {s['cv_spearman']:.2f}, pairwise "
-              f"{s['cv_pairwise_accuracy']:.2f}; slope {b:+.4f} per kJ/mol = "
-              f"{b / s['physical_slope_per_kJmol']:.2f} x TST; features {s['features']} ({s['variant']}); "
-              f"median {rows[-1][3]:.0f} s per diene; {time.perf_counter() - t0:.0f} s this run")
-        for k, v in ev["orders"].items():
-            print(f"    {k}: {'yes' if v else 'NO'}")
-    print("\nlevel | LOO RMSE | Spearman | pairwise | slope/TST | orders right | median s/diene")
-    for text, s, ev, wall in rows:
-        b = s["coefficients"].get("barrier_refined_kJmol", float("nan"))
-        print(f"{text} | {s['cv_rmse_log10k']:.2f} | {s['cv_spearman']:.2f} | {s['cv_pairwise_accuracy']:.2f} | "
-              f"{b / s['physical_slope_per_kJmol']:.2f} | {sum(ev['orders'].values())}/{len(ev['orders'])} | "
-              f"{wall:.0f}")
-    rho = [stats.spearmanr(list(rows[0][2]["barriers"].values()), list(r[2]["barriers"].values())).statistic
-           for r in rows[1:]]
-    if rho:
-        print("Spearman of barrier orders against the first level:", ", ".join(f"{x:.2f}" for x in rho))
+        print(f"level {text}", flush=True)
+        walls, bars = [], {}
+        for name, (key, stem, rec) in pairs.items():
+            dhash = rec["dienophile"]["dhash"]
+            t0 = time.perf_counter()
+            p = price(results, results, lvl, key, stem, dhash, args.threads)
+            ts_sp = [s["wall_s"] for s in p["pair"].get("single_points", [])]
+            walls += ts_sp
+            T = float(rec["extra"].get("temperature_K") or config["temperature_K"])
+            v = barrier_variants(p, read_json(results / "structures" / f"{key}.json"),
+                                 read_json(results / "dienophiles" / f"{dhash}.json"), dhash,
+                                 read_json(results / "transition" / f"{stem}.json"), st, results, T, lvl["method"])
+            if v is None:
+                print(f"  {name}: {p['pair'].get('status')} {p['pair'].get('message')}")
+                continue
+            bars[name] = v | {"log10_k": float(rec["extra"].get("log10_k") or "nan"), "T": T,
+                              "reference": rec["id"].startswith("ref-")}
+            print(f"  {name:<36} E {v['E']:7.1f}  E+D3 {v['E+D3']:7.1f}  E+dG(ens) {v['E+dG(ens)']:7.1f} "
+                  f"(disp {v['dispersion']:6.1f}, dGcorr {v['dG_corr']:5.1f}, ens {v['ensemble']:4.1f}; "
+                  f"{time.perf_counter() - t0:4.0f} s)", flush=True)
+        ref = {n: b for n, b in bars.items() if b["reference"] and math.isfinite(b["log10_k"])}
+        names = sorted(ref)
+        T_ref = statistics.median(ref[n]["T"] for n in names)
+        out = {"label": text, "median_ts_singlepoint_s": statistics.median(walls) if walls else None,
+               "variants": {}, "barriers": bars}
+        for var in VARIANTS:
+            figs = reference_figures(names, [ref[n][var] for n in names], [ref[n]["log10_k"] for n in names], T_ref)
+            orders = {f"{a} faster than {b}": bool(bars[a][var] < bars[b][var])
+                      for a, b in FASTER_THAN if a in bars and b in bars}
+            out["variants"][var] = figs | {"orders": orders, "n_orders_right": sum(orders.values()),
+                                           "n_orders": len(orders)}
+        if measurements:
+            gp = []
+            for m in measurements:
+                key, stem, dhash = gas[(m.diene_smiles, m.dienophile_smiles)]
+                p = price(results, results / "gas_phase", lvl, key, stem, dhash, args.threads)
+                base = results / "gas_phase"
+                v = barrier_variants(p, read_json(base / "structures" / f"{key}.json"),
+                                     read_json(base / "dienophiles" / f"{dhash}.json"), dhash,
+                                     read_json(base / "transition" / f"{stem}.json"), st, results,
+                                     m.temperature_K, lvl["method"])
+                if v is None:
+                    continue
+                gp.append({"reaction": f"{m.diene} + {m.dienophile}", "records": m.record_ids,
+                           "T": m.temperature_K, "dH_exp": m.dh_kJmol, "dG_exp": m.dg_kJmol,
+                           "E": v["E"], "dH": v["dH"], "dH+D3": v["dH+D3"], "dG": v["E+dG(ens)"],
+                           "dG+D3": v["E+D3+dG(ens)"], "weak": "weak" in m.note})
+            out["gas_phase"] = gas_summary(gp)
+        report[text] = out
+        print_level(text, out)
+    if args.json:
+        Path(args.json).write_text(json.dumps(report, indent=1, default=float))
+
+
+def gas_summary(rows: list[dict]) -> dict:
+    out = {"rows": rows}
+    for comp, exp in (("E", "dH_exp"), ("dH", "dH_exp"), ("dH+D3", "dH_exp"), ("dG", "dG_exp"), ("dG+D3", "dG_exp")):
+        use = [r for r in rows if not r["weak"]]
+        err = [r[comp] - r[exp] for r in use]
+        good, total = pair_order_fraction([r[exp] for r in use], [r[comp] for r in use], 8.0)
+        out[f"{comp} vs {exp}"] = {"MSE": float(np.mean(err)), "MAE": float(np.mean(np.abs(err))),
+                                  "spearman": float(stats.spearmanr([r[exp] for r in use], [r[comp] for r in use]).statistic),
+                                  "pairs_right": good, "pairs": total}
+    return out
+
+
+def print_level(text: str, out: dict) -> None:
+    print(f"\n{text}: median TS single point {out['median_ts_singlepoint_s'] or 0:.0f} s")
+    print("variant | LOO RMSE | Spearman | pairwise | nested RMSE | slope/TST | orders right")
+    for var, f in out["variants"].items():
+        print(f"{var} | {f['cv_rmse_log10k']:.2f} | {f['cv_spearman']:.2f} | {f['cv_pairwise_accuracy']:.2f} | "
+              f"{f['nested_rmse']:.2f} | {f['ols_slope_over_tst']:.2f} | {f['n_orders_right']}/{f['n_orders']}")
+        wrong = [k for k, v in f["orders"].items() if not v]
+        if wrong:
+            print("   wrong: " + "; ".join(wrong))
+    for k, g in out.get("gas_phase", {}).items():
+        if k != "rows":
+            print(f"gas phase {k}: MSE {g['MSE']:+.1f}, MAE {g['MAE']:.1f} kJ/mol, Spearman {g['spearman']:.2f}, "
+                  f"pairs >= 8 kJ/mol apart in order {g['pairs_right']}/{g['pairs']}")
+    print(flush=True)
 
 
 if __name__ == "__main__":

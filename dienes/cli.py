@@ -1,6 +1,6 @@
 """The `dienes` console command.
 
-    dienes rank LIBRARY [--dienophile SMILES] [--cores N] [--refine N] [--workdir DIR] [--set KEY=VALUE ...]
+    dienes rank LIBRARY [--dienophile SMILES] [--cores N] [--refine all|none|N] [--workdir DIR] [--set KEY=VALUE ...]
     dienes look SMILES [--dienophile SMILES] [--backend NAME] [--no-ts] [--no-profile]
 
 `rank` runs the Snakemake workflow for the everyday case and prints the top
@@ -27,7 +27,7 @@ BAR_WIDTH = 40
 RANK_EXAMPLES = """examples:
   dienes rank my_dienes.csv
   dienes rank my_dienes.csv --dienophile 'C=CC(=O)OC' --cores 8
-  dienes rank catalogue.sdf --refine 10 --workdir runs/catalogue
+  dienes rank catalogue.sdf --refine none --workdir runs/quick-screen
   dienes rank my_dienes.smi --set temperature_K=313.15 --set solvent=toluene
 
 Library: CSV with columns id and smiles (.csv/.tsv), .smi (SMILES then id) or .sdf.
@@ -82,7 +82,7 @@ def _rank(args) -> int:
     if args.dienophile:
         overrides.append(f"dienophile={args.dienophile}")
     if args.refine is not None:
-        overrides.append(f"refine={{top: {int(args.refine)}}}")
+        overrides.append(f"refine={{rows: {args.refine}}}")
     overrides += args.set or []
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
@@ -106,6 +106,12 @@ def _rank(args) -> int:
         for line in summary_lines(read_table(ranking), workdir / "results", summary, top=args.top):
             print(line)
     return 0
+
+
+def _refine_rows(text: str) -> str:
+    if text in ("all", "none") or (text.isdigit() and int(text) > 0):
+        return text
+    raise argparse.ArgumentTypeError("give all, none or a positive number of rows")
 
 
 def text_profile(angles, energies) -> list[str]:
@@ -197,9 +203,11 @@ def main(argv=None) -> int:
     r.add_argument("--dienophile", help="dienophile SMILES (C=C or C#C; default: the config's, maleic anhydride)")
     cores = os.cpu_count() or 1
     r.add_argument("--cores", type=int, default=cores, help=f"CPU cores to use (default: all, {cores} here)")
-    r.add_argument("--refine", type=int, metavar="N",
-                   help="refine the N best dienes (and the reference set) with a density-functional "
-                        "single point; minutes per diene (default: the config's refine.top, 0 = off)")
+    r.add_argument("--refine", type=_refine_rows, metavar="all|none|N",
+                   help="which dienes are priced at the refined (density-functional) level: all, none "
+                        "(a quick GFN2-xTB screen, labelled so) or the N best by GFN2-xTB (risky: GFN2-xTB "
+                        "misorders the top); about a minute per diene on one core (default: the config's "
+                        "refine.rows, all)")
     r.add_argument("--workdir", default=".", help="where results/ and logs/ go (default: the current directory)")
     r.add_argument("--set", action="append", metavar="KEY=VALUE",
                    help="any other config value, e.g. temperature_K=313.15 (repeatable; default: none)")

@@ -75,15 +75,35 @@ def is_true(value) -> bool:
     return str(value) in ("True", "true", "1", "1.0")
 
 
-def scale_line(summary: dict) -> str:
-    """For which dienophile the ranking is, and on which reference scale the numbers sit."""
+FAST_LEVEL = "GFN2-xTB"
+
+
+def level_barrier(row) -> float:
+    """A ranking row's barrier (kJ/mol) at the level its rank comes from."""
+    refined = str(row.get("level", FAST_LEVEL)) not in ("", FAST_LEVEL, "nan")
+    return row["barrier_refined_kJmol"] if refined else row["barrier_kJmol"]
+
+
+def scale_text(summary: dict) -> str:
+    """On which reference scale the numbers sit."""
     run = summary.get("run_dienophile", "")
-    base = summary.get("base_dienophile", "")
-    level = summary.get("level", "GFN2-xTB")
     same = summary.get("note", "") == ""
-    scale = (f"log10 k relative to 1,3-butadiene, scale set by the reference kinetics with {base}"
-             + ("" if same else f" (the run's dienophile {run} is not among them)"))
-    return f"ranking for dienophile {run}, barriers at the {level} level; {scale}"
+    return (f"log10 k relative to 1,3-butadiene, scale set by the reference kinetics with "
+            f"{summary.get('base_dienophile', '')}" + ("" if same else f" (the run's dienophile {run} is not among them)"))
+
+
+def level_text(summary: dict) -> str:
+    """At which level the barriers the ranking rests on were priced."""
+    level = summary.get("ranking_level", summary.get("level", FAST_LEVEL))
+    if level == FAST_LEVEL:
+        return ("barriers at the GFN2-xTB level only: a quick screen (GFN2-xTB over-rewards alkyl groups "
+                "and large flat dienes; rank with refine.rows: all before trusting the top)")
+    return f"barriers priced at {level} on GFN2-xTB structures (rows marked * fell back to GFN2-xTB)"
+
+
+def scale_line(summary: dict) -> str:
+    """For which dienophile the ranking is, at which level, and on which reference scale."""
+    return f"ranking for dienophile {summary.get('run_dienophile', '')}; {level_text(summary)}; {scale_text(summary)}"
 
 
 def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, top: int = 10) -> list[str]:
@@ -95,18 +115,25 @@ def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, t
     if summary:
         lines.append(scale_line(summary))
     ranked = ranking[ranking["rank"].notna()].sort_values("rank").head(top)
+    main_level = summary.get("ranking_level", FAST_LEVEL)
     if len(ranked):
         label = interval_label(summary.get("interval", 0.9))
-        lines.append(f"top {len(ranked)} (predicted log10 k [{label} interval]; "
-                     "! = extrapolation, not backed by the reference set):")
+        lines.append(f"top {len(ranked)} (predicted log10 k [{label} interval]; barrier at {main_level}; "
+                     "s-cis penalty at GFN2-xTB; ! = extrapolation, not backed by the reference set):")
         for _, r in ranked.iterrows():
             flag = " " if is_true(r["in_domain"]) else "!"
-            lines.append(f" {flag}{int(r['rank']):>3}  {str(r['id'])[:24]:<24} {r['log10_k_pred']:+6.2f} "
+            fell_back = "*" if main_level != FAST_LEVEL and str(r.get("level")) == FAST_LEVEL else " "
+            lines.append(f" {flag}{int(r['rank']):>3}{fell_back} {str(r['id'])[:24]:<24} {r['log10_k_pred']:+6.2f} "
                          f"[{r['log10_k_low']:+.2f}, {r['log10_k_high']:+.2f}]  "
-                         f"barrier {r['barrier_kJmol']:6.1f} kJ/mol  penalty {r['scis_penalty_kJmol']:5.1f} kJ/mol")
+                         f"barrier {level_barrier(r):6.1f} kJ/mol  penalty {r['scis_penalty_kJmol']:5.1f} kJ/mol")
         n_out = int((~ranking.loc[ranking["rank"].notna(), "in_domain"].map(is_true)).sum())
         if n_out:
             lines.append(f"{n_out} ranked row(s) are extrapolations: see in_domain and domain_note in ranking.csv")
+        if main_level != FAST_LEVEL:
+            n_fast = int((ranking.loc[ranking["rank"].notna(), "level"] == FAST_LEVEL).sum())
+            if n_fast:
+                lines.append(f"{n_fast} ranked row(s) are ranked at GFN2-xTB (their refinement failed or was "
+                             "not asked for): see level and message in ranking.csv")
     out = Path(out_dir)
     lines.append(f"outputs: {out / 'ranking.csv'} (table), {out / 'report.html'} (report), "
                  f"{out / 'dienes.sdf'} (3D structures), {out / 'sites.csv'}, {out / 'model.json'}")
@@ -163,13 +190,16 @@ def write_sdf(table: pd.DataFrame, computed, path) -> int:
             m.RemoveAllConformers()
             m.AddConformer(conf, assignId=True)
             tag = "" if is_true(r["in_domain"]) else " [extrapolation]"
-            m.SetProp("_Name", _sdf_text(f"{r['id']} {label}{tag}"))
+            m.SetProp("_Name", _sdf_text(f"{r['id']} {label} (GFN2-xTB geometry; ranked at {r['level']}){tag}"))
             props = {"id": r["id"], "row": int(r["row"]), "conformer": label, "status": r["status"],
                      "rank": int(r["rank"]), "in_domain": domain, "domain_note": r.get("domain_note", ""),
                      "smiles": r["smiles"], "isomer_smiles": r["isomer_smiles"],
                      "diene_site": r["best_site"], "dienophile": r.get("dienophile", ""),
-                     "barrier_kJmol": r["barrier_kJmol"], "scis_penalty_kJmol": r["scis_penalty_kJmol"],
-                     "homo_eV": r["homo_eV"], "lumo_eV": r["lumo_eV"], "log10_k_pred": r["log10_k_pred"],
+                     "level": r["level"], "barrier_at_level_kJmol": level_barrier(r),
+                     "barrier_gfn2_xtb_kJmol": r["barrier_kJmol"],
+                     "scis_penalty_gfn2_xtb_kJmol": r["scis_penalty_kJmol"],
+                     "homo_gfn2_xtb_eV": r["homo_eV"], "lumo_gfn2_xtb_eV": r["lumo_eV"],
+                     "log10_k_pred": r["log10_k_pred"],
                      "seed": res.get("seed", "")}
             for k, v in props.items():
                 m.SetProp(k, _sdf_text(v))

@@ -23,8 +23,18 @@ TS_COLUMNS = ("barrier_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
               "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
               "model_barrier_kJmol", "ts_imag_cm1", "face_gap_kJmol", "orientation_gap_kJmol")
 RANKED_STATUSES = ("ok", "ts_unverified")
-REFINED_COLUMNS = ("scis_penalty_refined_kJmol", "barrier_refined_kJmol", "intrinsic_barrier_refined_kJmol",
-                   "reaction_energy_refined_kJmol")
+REFINED_COLUMNS = ("barrier_refined_kJmol", "contact_dispersion_kJmol")
+FAST_LEVEL = "GFN2-xTB"
+# the chosen level's prediction columns, each from its per-level column (see level_column)
+PREDICTION_COLUMNS = ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage", "in_domain", "domain_note")
+
+
+def level_column(name: str, tag: str) -> str:
+    """Per-level name of a prediction column: log10_k_pred -> log10_k_<tag>,
+    log10_k_low -> log10_k_<tag>_low, in_domain -> in_domain_<tag>."""
+    if name.startswith("log10_k"):
+        return "log10_k_" + tag + name[len("log10_k"):].replace("_pred", "")
+    return f"{name}_{tag}"
 
 
 @dataclass
@@ -91,17 +101,24 @@ def site_features(site: dict, dienophile: dict, ts_site: dict | None, smiles: st
 
 
 def refined_features(refined: dict | None, label: str) -> dict:
-    """The refined-level energies of a site (NaN where the site was not refined)."""
+    """The refined-level barrier of a site (NaN where the site was not priced), the
+    level's name, and why not where it was not."""
     out = {c: float("nan") for c in REFINED_COLUMNS}
-    out["refine_status"] = ""
+    out.update(refine_status="", refine_message="", refined_level="")
     if refined is None:
         return out
-    if refined.get("site") == label or refined.get("status") != "ok":
-        out["refine_status"] = refined.get("status", "")
-        out["refine_message"] = refined.get("message", "")
-    if refined.get("status") == "ok" and refined.get("site") == label:
-        out.update({c: float(refined[c]) for c in REFINED_COLUMNS})
-        out["refined_level"] = refined.get("level", "")
+    out["refined_level"] = refined.get("level", "")
+    site = refined.get("sites", {}).get(label)
+    if site is None:
+        failed = refined.get("status") != "ok"
+        out["refine_status"] = refined.get("status", "missing") if failed else "not_priced"
+        out["refine_message"] = (refined.get("message", "") if failed else
+                                 "site not priced: its GFN2-xTB barrier lies well above the best site's")
+    elif site.get("status") != "ok":
+        out.update(refine_status=site.get("status", ""), refine_message=site.get("message", ""))
+    else:
+        out.update({c: float(site[c]) for c in REFINED_COLUMNS})
+        out["refine_status"] = "ok"
     return out
 
 
@@ -253,20 +270,16 @@ def fit_reference(reference: list[dict], computed: Computed, config: dict, run_d
     return fit, summary, table
 
 
-def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict,
-                  prefix: str = "") -> pd.DataFrame:
+def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict, tag: str) -> pd.DataFrame:
     """Predictions per site for the run's dienophile, with the applicability domain:
     every model descriptor within the reference set's span and leverage, the site's
     class (kind, aromatic or not) in the reference set, and a verified saddle.
-    prefix 'refined' writes log10_k_refined, log10_k_refined_low, ... instead."""
+    Columns carry the level's tag: log10_k_<tag>, log10_k_<tag>_low, in_domain_<tag>, ..."""
     out = site_rows.copy()
     run = canonical(summary["run_dienophile"])
     for name, smiles in summary["dienophile_terms"].items():
         out[name] = 1.0 if canonical(smiles) == run else 0.0
-    tag = f"_{prefix}" if prefix else ""
-    c_pred, c_lo, c_hi = ((f"log10_k{tag}", f"log10_k{tag}_low", f"log10_k{tag}_high") if prefix
-                          else ("log10_k_pred", "log10_k_low", "log10_k_high"))
-    c_lev, c_dom, c_note = f"leverage{tag}", f"in_domain{tag}", f"domain_note{tag}"
+    c_pred, c_lo, c_hi, c_lev, c_dom, c_note = (level_column(c, tag) for c in PREDICTION_COLUMNS)
     for col in (c_pred, c_lo, c_hi, c_lev):
         out[col] = np.nan
     out[c_dom] = pd.Series([None] * len(out), dtype=object)
@@ -300,6 +313,27 @@ def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict,
     return out
 
 
+def choose_level(sites: pd.DataFrame, refined_label: str | None) -> pd.DataFrame:
+    """One level per site: the refined model's prediction where the site has one, else the
+    GFN2-xTB model's, named in `level` and, where the refinement was asked for and failed,
+    in `level_note`. The chosen values go to log10_k_pred, log10_k_low, ..., in_domain."""
+    out = sites.copy()
+    refined = (out["log10_k_refined"].notna() if "log10_k_refined" in out
+               else pd.Series(False, index=out.index))
+    for name in PREDICTION_COLUMNS:
+        fast = out[level_column(name, "xtb")]
+        out[name] = out[level_column(name, "refined")].where(refined, fast) if refined.any() else fast
+    out["level"] = np.where(refined, refined_label or "", FAST_LEVEL)
+    out["level_note"] = ""
+    if refined_label:
+        asked = out.get("refine_status", pd.Series("", index=out.index)).fillna("")
+        fell_back = ~refined & out["log10_k_xtb"].notna() & (asked != "")
+        out.loc[fell_back, "level_note"] = [
+            f"ranked at GFN2-xTB: the {refined_label} pricing did not give a value ({st}: {msg})"
+            for st, msg in zip(out.loc[fell_back, "refine_status"], out.loc[fell_back, "refine_message"])]
+    return out
+
+
 def site_regio_hint(site: dict, dienophile: dict, demand_type: str) -> str:
     """Frontier-orbital regioselectivity: diene HOMO with dienophile LUMO in normal
     demand, diene LUMO with dienophile HOMO in inverse demand."""
@@ -311,25 +345,33 @@ def site_regio_hint(site: dict, dienophile: dict, demand_type: str) -> str:
                       tuple(i + 1 for i in dienophile["reactive_bond"]))
 
 
-RANKING_COLUMNS = ["rank", "id", "in_domain", "smiles", "status", "message", "domain_note",
-                   "log10_k_pred", "log10_k_low", "log10_k_high", "barrier_kJmol",
+RANKING_COLUMNS = ["rank", "id", "level", "in_domain", "smiles", "status", "message", "domain_note",
+                   "log10_k_pred", "log10_k_low", "log10_k_high", "barrier_refined_kJmol", "barrier_kJmol",
                    "scis_penalty_kJmol", "reactive_fraction", "homo_eV", "lumo_eV", "gap_normal_eV",
                    "gap_inverse_eV", "demand", "regio_hint", "regio_ts", "orientation_gap_kJmol",
                    "face_preference", "face_gap_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
                    "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
                    "model_barrier_kJmol", "ts_imag_cm1", "ts_verified", "best_site", "site_kind",
                    "n_sites", "dihedral_min_deg", "isomer_smiles", "n_isomers", "structure_key",
-                   "transition_key", "n_gradients", "converged", "dienophile", "row"]
-REFINED_RANKING_COLUMNS = ["rank_refined", "log10_k_refined", "log10_k_refined_low", "log10_k_refined_high",
-                           "in_domain_refined", "domain_note_refined", *REFINED_COLUMNS, "refined_level",
-                           "refine_status"]
+                   "transition_key", "n_gradients", "converged", "dienophile", "row",
+                   "rank_xtb", "log10_k_xtb", "log10_k_xtb_low", "log10_k_xtb_high", "in_domain_xtb",
+                   "refined_level", "refine_status", "refine_message", "contact_dispersion_kJmol", "aromatic"]
 BEST_SITE_COLUMNS = [c for c in RANKING_COLUMNS if c not in (
     "rank", "id", "smiles", "status", "message", "best_site", "n_sites", "n_isomers", "structure_key",
-    "n_gradients", "converged", "row")]
+    "n_gradients", "converged", "row", "rank_xtb")]
+
+
+def _order(table: pd.DataFrame, column: str, eligible: pd.Series) -> pd.Series:
+    """Ranks 1..n by `column`, highest first (input order breaks ties), where `eligible`."""
+    order = table.loc[eligible].sort_values([column, "row"], ascending=[False, True]).index
+    out = pd.Series(pd.NA, index=table.index, dtype="Int64")
+    out.loc[order] = np.arange(1, len(order) + 1)
+    return out
 
 
 def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> pd.DataFrame:
-    """One row per input record, in input order, best isomer and site of each."""
+    """One row per input record, in input order, best isomer and site of each at the
+    row's level (see choose_level); rank_xtb ranks the same rows by the GFN2-xTB model."""
     rows = []
     for rec in records:
         row = {"row": rec["row"], "id": rec["id"], "smiles": rec["smiles"], "status": rec["status"],
@@ -342,11 +384,12 @@ def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> 
             if len(ok) and ok["log10_k_pred"].notna().any():
                 best = ok.loc[ok["log10_k_pred"].idxmax()]
                 res = computed.structures[best["key"]]
-                row.update({c: best[c] for c in BEST_SITE_COLUMNS + REFINED_RANKING_COLUMNS if c in best})
+                row.update({c: best[c] for c in BEST_SITE_COLUMNS if c in best})
                 row.update({"best_site": best["site"], "n_sites": int((mine["key"] == best["key"]).sum()),
                             "structure_key": best["key"], "n_gradients": res.get("n_gradients"),
-                            "converged": res.get("converged")})
-                notes = [row["message"], res.get("message", "")]
+                            "converged": res.get("converged"),
+                            "log10_k_xtb": ok["log10_k_xtb"].max()})   # the row's best site at GFN2-xTB
+                notes = [row["message"], res.get("message", ""), best.get("level_note", "")]
                 if best["ts_status"] != "ok":
                     row["status"] = best["ts_status"]
                     notes.append(f"transition structure: {best.get('ts_message', '')}")
@@ -359,23 +402,9 @@ def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> 
         if col not in table:
             table[col] = np.nan
     ranked = table["status"].isin(RANKED_STATUSES) & table["log10_k_pred"].notna()
-    order = table.loc[ranked].sort_values(["log10_k_pred", "row"], ascending=[False, True]).index
-    table["rank"] = pd.Series(dtype="Int64")
-    table.loc[order, "rank"] = np.arange(1, len(order) + 1)
-    table["rank"] = table["rank"].astype("Int64")
-    columns = list(RANKING_COLUMNS)
-    if "log10_k_refined" in table and table["log10_k_refined"].notna().any():
-        refined = ranked & table["log10_k_refined"].notna()
-        order = table.loc[refined].sort_values(["log10_k_refined", "row"], ascending=[False, True]).index
-        table["rank_refined"] = pd.Series(dtype="Int64")
-        table.loc[order, "rank_refined"] = np.arange(1, len(order) + 1)
-        table["rank_refined"] = table["rank_refined"].astype("Int64")
-        for col in REFINED_RANKING_COLUMNS:
-            if col not in table:
-                table[col] = np.nan
-        columns = columns[:1] + ["rank_refined"] + columns[1:] + [
-            c for c in REFINED_RANKING_COLUMNS if c != "rank_refined"]
-    return table[columns + [c for c in table.columns if c not in columns]]
+    table["rank"] = _order(table, "log10_k_pred", ranked)
+    table["rank_xtb"] = _order(table, "log10_k_xtb", ranked & table["log10_k_xtb"].notna())
+    return table[RANKING_COLUMNS + [c for c in table.columns if c not in RANKING_COLUMNS]]
 
 
 def _unranked(rec: dict, computed: Computed, ok: pd.DataFrame) -> dict:

@@ -1,50 +1,71 @@
-"""Density-functional refinement of GFN2-xTB structures (single points, PySCF).
+"""Pricing GFN2-xTB structures at a better level (single points).
 
-GFN2-xTB places the atoms; a density functional prices them. For one diene
-structure and one dienophile the refinement computes single points at:
+GFN2-xTB places every atom: conformers, planar s-cis, the located transition
+structure. It does not order dienes well by its own energies (too much
+dispersion, too generous to alkyl groups and large flat dienes), so the
+barrier the ranking rests on is priced again at a better level, a density
+functional by default. A level is any object with ``label()``, ``as_dict()``
+and ``energy(numbers, positions_A)`` in kJ/mol (:mod:`dienes.backends`:
+:class:`~dienes.backends.DFTLevel`, :class:`~dienes.backends.GFN2Level`), so
+every function here takes the level as a parameter.
 
-- the diene's lowest GFN2-xTB minima (the refined minimum is the lowest of them),
-- the planar s-cis structure of the refined site,
-- the located transition structure of the site and its cycloadduct,
-- the dienophile's minimum (its own cached result).
+Only the single points the ranking needs are computed:
 
-Energies (kJ/mol) at the refined level, measured like the GFN2-xTB ones:
+- the diene's lowest GFN2-xTB minima (up to LOW_MINIMA_KEPT within 10 kJ/mol
+  of the global one: the better level may order them differently, and a
+  barrier measured from the wrong minimum is wrong by that difference); the
+  priced minimum is the lowest of them. One result per structure and level,
+  shared by every dienophile.
+- the dienophile's minimum, once per run (one result per dienophile and level);
+- the transition structure of every reactive site whose GFN2-xTB barrier lies
+  within SITE_WINDOW_KJMOL of the site's best (the better level may prefer
+  another site of a polyene or an acene).
 
-- ``scis_penalty_refined``   = E(planar s-cis) - E(refined minimum)
-- ``barrier_refined``        = E(TS) - E(refined diene minimum) - E(dienophile)
-- ``intrinsic_barrier_refined`` = E(TS) - E(planar s-cis) - E(dienophile)
-- ``reaction_energy_refined``   = E(adduct) - E(refined diene minimum) - E(dienophile)
+Not priced: the planar s-cis structure (the s-cis penalty column stays at
+GFN2-xTB, named so; the barrier from the global minimum already contains the
+penalty) and the cycloadduct (the reaction energy column stays at GFN2-xTB).
+Each would cost a single point per diene without changing the ranking.
+
+barrier_refined (kJ/mol) = E(TS) - E(lowest priced diene minimum) - E(dienophile)
 
 An SCF that does not converge (after the second-order fallback) gives the
-status ``scf_failed`` with the step named; the GFN2-xTB values stay in place.
+status ``scf_failed`` naming the structure; the row then keeps its GFN2-xTB
+values and says so.
 """
 
 from __future__ import annotations
 
 import time
 
-from .backends import DFTSettings, dft_energy
+from .backends import DFTLevel, DFTSettings, d3_dispersion_kJmol
+
+SITE_WINDOW_KJMOL = 15.0          # sites priced: GFN2-xTB barrier within this of the site's best
+PRICED_SITE_STATUSES = ("ok", "ts_unverified")
 
 
 def level_settings(refine: dict) -> DFTSettings:
     """The DFTSettings of the config's `refine` section."""
     def given(v):
         return None if v in (None, "", "none") else v
+    extra = {k: refine[k] for k in ("grid_level", "conv_tol_hartree", "density_fit") if k in refine}
     return DFTSettings(method=refine["method"], basis=refine["basis"],
-                       dispersion=given(refine.get("dispersion")), solvent=given(refine.get("solvent")))
+                       dispersion=given(refine.get("dispersion")), solvent=given(refine.get("solvent")),
+                       **extra)
 
 
-def level_dict(level: DFTSettings) -> dict:
-    return {"method": level.method, "basis": level.basis, "dispersion": level.dispersion,
-            "solvent": level.solvent, "grid_level": level.grid_level}
+def level_from_config(refine: dict, threads: int | None = None):
+    """The refined level of a config's `refine` section, or None when refinement is off."""
+    if refine.get("rows", "all") == "none":
+        return None
+    return DFTLevel(level_settings(refine), threads)
 
 
 class SCFFailure(RuntimeError):
-    """A refined single point did not converge."""
+    """A single point at the level did not converge."""
 
 
-def _energy(numbers, positions, level, threads, what: str, log: list) -> float:
-    r = dft_energy(numbers, positions, level, threads=threads)
+def _energy(level, numbers, positions, what: str, log: list) -> float:
+    r = level.energy(numbers, positions)
     log.append({"what": what, "energy_kJmol": round(r.energy_kJmol, 4),
                 "dispersion_kJmol": round(r.dispersion_kJmol, 4), "converged": r.converged,
                 "cycles": r.cycles, "wall_s": r.wall_s})
@@ -53,66 +74,90 @@ def _energy(numbers, positions, level, threads, what: str, log: list) -> float:
     return r.energy_kJmol
 
 
-def refine_dienophile(dienophile: dict, level: DFTSettings, threads: int = 1) -> dict:
-    """Refined energy of a dienophile at its GFN2-xTB minimum."""
+def _result(level, **fields) -> dict:
+    return {"level": level.label(), "settings": level.as_dict(), "status": "ok", "message": ""} | fields
+
+
+def price_dienophile(dienophile: dict, level) -> dict:
+    """Energy (kJ/mol) of a dienophile at its GFN2-xTB minimum, at `level`."""
     t0 = time.perf_counter()
     log: list = []
-    out = {"smiles": dienophile["smiles"], "level": level.label(), "settings": level_dict(level),
-           "status": "ok", "message": "", "single_points": log}
+    out = _result(level, smiles=dienophile["smiles"], single_points=log)
     try:
-        out["energy_kJmol"] = round(_energy(dienophile["geometry"]["numbers"],
-                                            dienophile["geometry"]["minimum_A"], level, threads,
-                                            "dienophile minimum", log), 4)
+        out["energy_kJmol"] = round(_energy(level, dienophile["geometry"]["numbers"],
+                                            dienophile["geometry"]["minimum_A"], "dienophile minimum", log), 4)
     except SCFFailure as exc:
         out |= {"status": "scf_failed", "message": str(exc)}
-    out["wall_time_s"] = round(time.perf_counter() - t0, 2)
-    return out
+    return out | {"wall_time_s": round(time.perf_counter() - t0, 2)}
 
 
-def best_located_site(transition: dict) -> str | None:
-    """The site whose verified saddle is lowest: the one the refinement prices."""
-    ok = [(s["barrier_kJmol"], label) for label, s in transition.get("sites", {}).items()
-          if s.get("status") == "ok"]
-    return min(ok)[1] if ok else None
-
-
-def refine_pair(structure: dict, transition: dict, dienophile_refined: dict, level: DFTSettings,
-                threads: int = 1) -> dict:
-    """Refined penalty, barrier and reaction energy of one diene structure with the
-    dienophile of its transition-structure result."""
+def price_structure(structure: dict, level) -> dict:
+    """Energies (kJ/mol) of a diene's lowest GFN2-xTB minima at `level`; the priced
+    minimum is the lowest of them."""
     t0 = time.perf_counter()
     log: list = []
-    out = {"key": structure.get("key", ""), "dienophile": transition.get("dienophile", ""),
-           "level": level.label(), "settings": level_dict(level), "status": "ok", "message": "",
-           "single_points": log}
-    site = best_located_site(transition)
-    if structure.get("status") != "ok" or site is None:
-        return out | {"status": "not_refined", "message": "no verified transition structure to refine"}
-    if dienophile_refined.get("status") != "ok":
-        return out | {"status": dienophile_refined.get("status", "missing"),
-                      "message": f"dienophile: {dienophile_refined.get('message', 'not refined')}"}
+    out = _result(level, key=structure.get("key", ""), single_points=log)
+    if structure.get("status") != "ok":
+        return out | {"status": "not_refined", "message": "no GFN2-xTB structure to price"}
     geo = structure["geometry"]
-    numbers = geo["numbers"]
-    ts = transition["sites"][site]
     try:
-        minima = [_energy(numbers, pos, level, threads, f"diene minimum {k + 1}", log)
+        minima = [_energy(level, geo["numbers"], pos, f"diene minimum {k + 1}", log)
                   for k, pos in enumerate(geo.get("low_minima_A") or [geo["minimum_A"]])]
-        e_min = min(minima)
-        penalty_gfn2 = next(s["scis_penalty_kJmol"] for s in structure["sites"] if s["label"] == site)
-        if penalty_gfn2 > 1e-3:
-            e_planar = _energy(numbers, geo["planar_s_cis_A"][site], level, threads, "planar s-cis", log)
-        else:  # ring-locked or already planar at its minimum: the planar structure is the minimum
-            e_planar = e_min
-        e_ts = _energy(transition["numbers"], ts["positions_A"], level, threads, "transition structure", log)
-        e_adduct = _energy(transition["numbers"], ts["adduct_A"], level, threads, "cycloadduct", log)
     except SCFFailure as exc:
         return out | {"status": "scf_failed", "message": str(exc),
                       "wall_time_s": round(time.perf_counter() - t0, 2)}
-    e_dph = dienophile_refined["energy_kJmol"]
-    return out | {
-        "site": site, "minimum_index": minima.index(e_min),
-        "scis_penalty_refined_kJmol": round(max(e_planar - e_min, 0.0), 3),
-        "barrier_refined_kJmol": round(e_ts - e_min - e_dph, 3),
-        "intrinsic_barrier_refined_kJmol": round(e_ts - e_planar - e_dph, 3),
-        "reaction_energy_refined_kJmol": round(e_adduct - e_min - e_dph, 3),
-        "n_single_points": len(log), "wall_time_s": round(time.perf_counter() - t0, 2)}
+    best = min(range(len(minima)), key=minima.__getitem__)
+    return out | {"minima_kJmol": [round(e, 4) for e in minima], "energy_min_kJmol": round(minima[best], 4),
+                  "minimum_index": best, "wall_time_s": round(time.perf_counter() - t0, 2)}
+
+
+def sites_to_price(transition: dict) -> list[str]:
+    """Reactive sites of a transition-structure result worth pricing: a structure to
+    price (verified saddle, or the model structure of an unverified one) and a GFN2-xTB
+    barrier within SITE_WINDOW_KJMOL of the best such site, lowest first."""
+    cands = sorted((s["barrier_kJmol"], label) for label, s in transition.get("sites", {}).items()
+                   if s.get("status") in PRICED_SITE_STATUSES and s.get("positions_A")
+                   and s.get("barrier_kJmol") is not None)
+    return [label for e, label in cands if e - cands[0][0] <= SITE_WINDOW_KJMOL]
+
+
+def contact_dispersion(transition: dict, label: str) -> float:
+    """London dispersion between the two partners at a site's transition structure (kJ/mol):
+    D3(BJ) with B3LYP's damping, E(complex) - E(diene part) - E(dienophile part). A geometry
+    term, no SCF: it says how much a dispersion-rich level (GFN2-xTB) rewards the contact."""
+    site = transition["sites"][label]
+    pos, numbers, nd = site["positions_A"], transition["numbers"], site["n_diene_atoms"]
+    return (d3_dispersion_kJmol(numbers, pos) - d3_dispersion_kJmol(numbers[:nd], pos[:nd])
+            - d3_dispersion_kJmol(numbers[nd:], pos[nd:]))
+
+
+def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict, level) -> dict:
+    """Barriers (kJ/mol) at `level` of every priced site of one (diene, dienophile) pair,
+    from the diene's and the dienophile's priced minima."""
+    t0 = time.perf_counter()
+    log: list = []
+    out = _result(level, key=transition.get("key", ""), dienophile=transition.get("dienophile", ""),
+                  single_points=log, sites={})
+    labels = sites_to_price(transition)
+    if not labels:
+        return out | {"status": "not_refined", "message": "no transition structure to price"}
+    for what, priced in (("diene", structure_priced), ("dienophile", dienophile_priced)):
+        if priced.get("status") != "ok":
+            return out | {"status": priced.get("status", "missing"),
+                          "message": f"{what}: {priced.get('message') or 'not priced'}"}
+    e_ref = structure_priced["energy_min_kJmol"] + dienophile_priced["energy_kJmol"]
+    for label in labels:
+        site = transition["sites"][label]
+        try:
+            e_ts = _energy(level, transition["numbers"], site["positions_A"],
+                           f"transition structure of site {label}", log)
+        except SCFFailure as exc:
+            out["sites"][label] = {"status": "scf_failed", "message": str(exc)}
+            continue
+        out["sites"][label] = {"status": "ok", "barrier_refined_kJmol": round(e_ts - e_ref, 3),
+                               "ts_status": site["status"],
+                               "contact_dispersion_kJmol": round(contact_dispersion(transition, label), 3)}
+    if not any(s["status"] == "ok" for s in out["sites"].values()):
+        out |= {"status": "scf_failed", "message": "; ".join(s["message"] for s in out["sites"].values())}
+    return out | {"minimum_index": structure_priced["minimum_index"],
+                  "wall_time_s": round(time.perf_counter() - t0, 2)}

@@ -19,7 +19,7 @@ import pandas as pd
 from rdkit import Chem
 from rdkit.Chem.Draw import rdMolDraw2D
 
-from .outputs import interval_label, is_true, scale_line
+from .outputs import FAST_LEVEL, interval_label, is_true, level_barrier, level_text, scale_text
 
 SAFETY = [
     "Predictions are estimates for prioritising experiments. They are not hazard data.",
@@ -75,20 +75,24 @@ GLOSSARY_COLUMNS = {
                  "is given)",
     "log10 k": "predicted log10 of the rate constant relative to 1,3-butadiene, with its prediction "
                "interval",
-    "barrier": "E(transition structure) − E(diene's lowest conformer) − E(dienophile), GFN2-xTB, kJ/mol; "
-               "includes the cost of reaching s-cis. GFN2-xTB barriers are far too low in value; the "
-               "regression sets their scale",
-    "s-cis penalty": "E(planar s-cis) − E(lowest conformer), kJ/mol; 0 for ring-locked s-cis dienes",
+    "level": "the level of theory the row's rank, log10 k and barrier come from: the refined level "
+             "(a density functional on the GFN2-xTB structures) for every row it could price, GFN2-xTB "
+             "where that failed (the message says why) or where the run asked for GFN2-xTB only",
+    "barrier": "E(transition structure) − E(diene's lowest conformer) − E(dienophile), kJ/mol, at the row's "
+               "level; includes the cost of reaching s-cis. The GFN2-xTB barrier (secondary column) is far "
+               "too low in value; the regression sets the scale of each level's barriers",
+    "s-cis penalty": "E(planar s-cis) − E(lowest conformer), GFN2-xTB, kJ/mol; 0 for ring-locked s-cis dienes",
     "HOMO / LUMO": "GFN2-xTB orbital energies of the diene unit (eV): model features, not ionisation energies",
     "regio (orbitals)": "frontier-orbital rule: the larger diene terminus coefficient bonds the larger "
                         "dienophile carbon coefficient; atom numbers as drawn",
     "regio (saddle)": "the orientation of the lowest located transition structure, and how much higher "
                       "the other orientation lies (kJ/mol)",
     "endo/exo": "the face of the lowest located transition structure and the energy gap to the other face",
-    "reaction energy": "E(cycloadduct) − E(reactants), kJ/mol; close to zero or positive means the "
+    "reaction energy": "E(cycloadduct) − E(reactants), GFN2-xTB, kJ/mol; close to zero or positive means the "
                        "adduct may revert (furans, acenes)",
     "site": "the diene unit that scores the molecule: its carbons C1–C2–C3–C4, numbered in the drawing",
-    "refined": "density-functional single points on the GFN2-xTB structures (shortlist only)",
+    "contact dispersion": "London dispersion between the partners at the transition structure (D3(BJ), "
+                          "kJ/mol): large for flat π systems and bulky alkyl groups, which GFN2-xTB rewards",
 }
 
 STYLE = """
@@ -307,8 +311,9 @@ def _site_atoms(label) -> list[int]:
 
 COLUMNS = [  # (header, sortable, secondary)
     ("rank", True, False), ("structure", False, False), ("id", True, False), ("status", True, False),
-    ("in domain", True, False), ("log10 k (interval)", True, False), ("barrier kJ/mol", True, False),
-    ("s-cis penalty kJ/mol", True, False), ("HOMO eV", True, True), ("LUMO eV", True, True),
+    ("in domain", True, False), ("log10 k (interval)", True, False), ("level", True, False),
+    ("barrier kJ/mol", True, False), ("barrier GFN2-xTB kJ/mol", True, True),
+    ("s-cis penalty kJ/mol (GFN2-xTB)", True, False), ("HOMO eV", True, True), ("LUMO eV", True, True),
     ("regio (orbitals)", False, True), ("regio (saddle)", False, True), ("endo/exo", False, True),
     ("reaction energy kJ/mol", True, True), ("site", True, False), ("message", False, False)]
 
@@ -344,7 +349,9 @@ def _table(table: pd.DataFrame, label: str) -> str:
             f"<td class='{'status-ok' if ok else 'status-bad'}'>{esc(r['status'])}</td>",
             f"<td data-sort='{dom_key}'>{dom_html}</td>",
             f"<td class='num' data-sort='{_num(r['log10_k_pred'], '{:.4f}')}'>{pred}</td>",
-            f"<td class='num'>{_num(r['barrier_kJmol'], '{:.1f}')}</td>",
+            f"<td>{esc(r.get('level')) if ranked else ''}</td>",
+            f"<td class='num'>{_num(level_barrier(r), '{:.1f}') if ranked else ''}</td>",
+            f"<td class='num secondary'>{_num(r['barrier_kJmol'], '{:.1f}')}</td>",
             f"<td class='num'>{_num(r['scis_penalty_kJmol'], '{:.1f}')}</td>",
             f"<td class='num secondary'>{_num(r['homo_eV'])}</td>",
             f"<td class='num secondary'>{_num(r['lumo_eV'])}</td>",
@@ -377,43 +384,73 @@ def _table(table: pd.DataFrame, label: str) -> str:
             f"<table id='ranking'>{head}<tbody>{''.join(body)}</tbody></table>")
 
 
-def _refined_table(table: pd.DataFrame) -> str:
-    """The shortlist side by side at both levels, with where they disagree."""
-    if "rank_refined" not in table or not table["rank_refined"].notna().any():
+LEVEL_ROWS_SHOWN = 10      # rows of the level comparison: the largest rank changes
+
+
+def _alkyl_carbons(smiles: str, site_label) -> int:
+    """sp3 carbons bonded to the diene unit's four carbons."""
+    mol = Chem.MolFromSmiles(smiles) if smiles else None
+    atoms = _site_atoms(site_label)
+    if mol is None or not atoms or max(atoms) >= mol.GetNumAtoms():
+        return 0
+    return len({n.GetIdx() for i in atoms for n in mol.GetAtomWithIdx(i).GetNeighbors()
+                if n.GetAtomicNum() == 6 and n.GetHybridization() == Chem.HybridizationType.SP3
+                and n.GetIdx() not in atoms})
+
+
+def level_reason(row, median_dispersion: float) -> str:
+    """The likely reason the two levels place a row differently, from what sets GFN2-xTB apart:
+    aromaticity it undercharges, dispersion and alkyl groups it over-rewards."""
+    up = int(row["rank_xtb"]) > int(row["rank"])        # the refined level ranks it higher
+    disp = float(row.get("contact_dispersion_kJmol", float("nan")))
+    n_alkyl = _alkyl_carbons(_text(row.get("isomer_smiles")), row.get("best_site"))
+    why = []
+    if is_true(row.get("aromatic")):
+        why.append("aromatic diene unit: the refined level charges the lost aromaticity that GFN2-xTB "
+                   "undercounts" if not up else "aromatic diene unit")
+    if not math.isnan(disp) and abs(disp - median_dispersion) >= 5.0:
+        more = disp < median_dispersion
+        if more != up:
+            why.append(f"dispersion: {'more' if more else 'less'} contact dispersion than the median row "
+                       f"({disp:.0f} against {median_dispersion:.0f} kJ/mol, D3), which GFN2-xTB "
+                       f"{'rewards' if more else 'misses'} and the refined level does not count")
+    if n_alkyl >= 2 and not up:
+        why.append(f"alkyl groups: {n_alkyl} sp3 carbons on the diene unit, which GFN2-xTB over-rewards")
+    if not why:
+        why.append("electronic: the two levels weigh the substituents' donor/acceptor effect differently")
+    return "; ".join(why)
+
+
+def _level_comparison(table: pd.DataFrame) -> str:
+    """Both ranks side by side for the rows where the two levels disagree most."""
+    both = table[table["rank"].notna() & table["rank_xtb"].notna() & (table["level"] != FAST_LEVEL)]
+    if not len(both):
         return ""
-    short = table[table["rank_refined"].notna()].sort_values("rank_refined")
-    rank_of = {r: k for k, r in enumerate(short.sort_values("rank")["row"], start=1)}
-    rows = []
-    n_disagree = 0
-    for _, r in short.iterrows():
-        gfn_pos = rank_of[r["row"]]
-        shift = gfn_pos - int(r["rank_refined"])
-        disagree = abs(shift) >= 2 or abs(float(r["log10_k_refined"]) - float(r["log10_k_pred"])) >= 1.0
-        n_disagree += disagree
-        why = (f"moves {'up' if shift > 0 else 'down'} {abs(shift)} place(s) in the shortlist; "
-               if shift else "") + (f"log10 k differs by {float(r['log10_k_refined']) - float(r['log10_k_pred']):+.1f}"
-                                     if abs(float(r["log10_k_refined"]) - float(r["log10_k_pred"])) >= 1.0 else "")
-        rows.append(
-            f"<tr class='{'extrap' if disagree else ''}'><td class='num'>{int(r['rank_refined'])}</td>"
-            f"<td class='num'>{int(r['rank'])}</td><td>{esc(r['id'])}</td>"
-            f"<td class='num'>{_num(r['log10_k_refined'])} ({_num(r['log10_k_refined_low'])} – "
-            f"{_num(r['log10_k_refined_high'])})</td><td class='num'>{_num(r['log10_k_pred'])}</td>"
-            f"<td class='num'>{_num(r['barrier_refined_kJmol'], '{:.1f}')}</td>"
-            f"<td class='num'>{_num(r['barrier_kJmol'], '{:.1f}')}</td>"
-            f"<td class='num'>{_num(r['scis_penalty_refined_kJmol'], '{:.1f}')}</td>"
-            f"<td class='num'>{_num(r['scis_penalty_kJmol'], '{:.1f}')}</td>"
-            f"<td class='num'>{_num(r['reaction_energy_refined_kJmol'], '{:.0f}')}</td>"
-            f"<td>{'<b>disagree</b>: ' + esc(why.strip('; ')) if disagree else 'agree'}</td></tr>")
-    level = _text(short["refined_level"].dropna().iloc[0]) if short["refined_level"].notna().any() else ""
-    head = ("<tr><th>rank refined</th><th>rank GFN2-xTB</th><th>id</th><th>log10 k refined</th>"
-            "<th>log10 k GFN2-xTB</th><th>barrier refined</th><th>barrier GFN2-xTB</th>"
-            "<th>penalty refined</th><th>penalty GFN2-xTB</th><th>reaction energy refined</th><th>levels</th></tr>")
-    return (f"<h2>Refined shortlist ({esc(level)})</h2><p>The {len(short)} best GFN2-xTB-ranked rows, "
-            f"refined with density-functional single points on the GFN2-xTB structures and ranked by a model "
-            f"of the same form fitted on the refined reference set. The two levels disagree on "
-            f"{n_disagree} of {len(short)} rows (shortlist place moved by 2 or more, or log10 k by 1 or more). "
-            "Where they disagree, trust the refined level. Energies in kJ/mol.</p>"
-            f"<table>{head}{''.join(rows)}</table>")
+    both = both.assign(_shift=(both["rank_xtb"].astype(int) - both["rank"].astype(int)))
+    moved = both[both["_shift"] != 0]
+    picked = moved.reindex(moved["_shift"].abs().sort_values(ascending=False).index).head(LEVEL_ROWS_SHOWN)
+    median_disp = float(both["contact_dispersion_kJmol"].astype(float).median())
+    level = _text(both["level"].iloc[0])
+    rows = "".join(
+        f"<tr><td>{esc(r['id'])}<div class='small'>{esc(r['smiles'])}</div></td>"
+        f"<td class='num'>{int(r['rank'])}</td><td class='num'>{int(r['rank_xtb'])}</td>"
+        f"<td class='num'>{'+' if r['_shift'] > 0 else ''}{int(r['_shift'])}</td>"
+        f"<td class='num'>{_num(r['barrier_refined_kJmol'], '{:.1f}')}</td>"
+        f"<td class='num'>{_num(r['barrier_kJmol'], '{:.1f}')}</td>"
+        f"<td class='num'>{_num(r['contact_dispersion_kJmol'], '{:.0f}')}</td>"
+        f"<td>{esc(level_reason(r, median_disp))}</td></tr>" for _, r in picked.iterrows())
+    rho = both[["rank", "rank_xtb"]].astype(float).corr(method="spearman").iloc[0, 1]
+    if not len(picked):
+        return (f"<h2>Where the two levels disagree</h2><p>Nowhere: GFN2-xTB alone orders the {len(both)} rows "
+                f"as the {esc(level)} barriers do.</p>")
+    return (f"<h2>Where the two levels disagree</h2><p>The ranking comes from {esc(level)} single points on the "
+            f"GFN2-xTB structures. GFN2-xTB alone would order the same {len(both)} rows differently "
+            f"(Spearman {rho:.2f} between the two rankings); these are the {len(picked)} rows it moves most, "
+            "with the likely reason. Energies in kJ/mol; contact dispersion is the D3 attraction between the "
+            "partners at the transition structure (median here "
+            f"{median_disp:.0f}).</p><table><tr><th>id</th><th>rank ({esc(level)})</th><th>rank GFN2-xTB</th>"
+            "<th>places gained</th><th>barrier refined</th><th>barrier GFN2-xTB</th><th>contact dispersion</th>"
+            f"<th>likely reason</th></tr>{rows}</table>")
 
 
 def _coefficient_rows(model: dict) -> list:
@@ -430,7 +467,8 @@ def _coefficient_rows(model: dict) -> list:
 
 def _model_section(model: dict, reference: pd.DataFrame) -> str:
     label = interval_label(model.get("interval", 0.9))
-    b = model.get("coefficients", {}).get("barrier_kJmol")
+    coefs = model.get("coefficients", {})
+    b = coefs.get("barrier_refined_kJmol", coefs.get("barrier_kJmol"))
     tst = model.get("physical_slope_per_kJmol")
     rows = [
         ("features", ", ".join(model.get("features", []))),
@@ -462,18 +500,19 @@ def _model_section(model: dict, reference: pd.DataFrame) -> str:
         prov = "".join(f"<tr><td>{esc(r['id'])}</td><td>{esc(r['smiles'])}</td><td class='num'>{_num(r['log10_k'])}</td>"
                        f"<td>{esc(r.get('provenance', ''))}</td><td>{'yes' if is_true(r.get('used')) else esc(r.get('reason', ''))}</td></tr>"
                        for _, r in reference.iterrows())
-    refined = model.get("refined") or {}
+    fast = model.get("fast") or {}
     extra = ""
-    if refined and "error" not in refined:
-        extra = ("<h3>Refined-level model</h3>" + _kv([
-            ("level", refined.get("level")), ("features", ", ".join(refined.get("features", []))),
-            ("variant", refined.get("variant")), ("reference dienes used", refined.get("n_reference")),
-            ("LOO RMSE / Spearman / pairwise", f"{_num(refined.get('cv_rmse_log10k'))} / "
-             f"{_num(refined.get('cv_spearman'))} / {_num(refined.get('cv_pairwise_accuracy'))}")]
-            + _coefficient_rows(refined)))
-    elif refined.get("error"):
-        extra = f"<p>Refined model not fitted: {esc(refined['error'])}</p>"
-    return ("<h2>Model</h2><div class='grid'><div>" + _kv(rows) + "</div><div>"
+    if fast:
+        extra = ("<h3>GFN2-xTB model (ranks the rows the refined level could not price)</h3>" + _kv([
+            ("features", ", ".join(fast.get("features", []))),
+            ("variant", fast.get("variant")), ("reference dienes used", fast.get("n_reference")),
+            ("LOO RMSE / Spearman / pairwise", f"{_num(fast.get('cv_rmse_log10k'))} / "
+             f"{_num(fast.get('cv_spearman'))} / {_num(fast.get('cv_pairwise_accuracy'))}")]
+            + _coefficient_rows(fast)))
+    if model.get("refined_error"):
+        extra += f"<p>Refined model not fitted, every row is ranked at GFN2-xTB: {esc(model['refined_error'])}</p>"
+    return (f"<h2>Model ({esc(model.get('level', FAST_LEVEL))} barriers)</h2><div class='grid'><div>" + _kv(rows)
+            + "</div><div>"
             "<table><tr><th>variant</th><th>LOO RMSE</th><th>Spearman</th><th>pairwise</th></tr>" + comp
             + "</table><p class='small'>Descriptors tried (leave-one-out RMSE):</p><table>" + tried
             + "</table></div></div>" + extra
@@ -505,6 +544,18 @@ def reference_caution(reference: pd.DataFrame) -> str:
     return text
 
 
+def _level_line(table: pd.DataFrame, model: dict) -> str:
+    """Which level ranks how many rows."""
+    ranked = table[table["rank"].notna()]
+    level = model.get("ranking_level", FAST_LEVEL)
+    if level == FAST_LEVEL:
+        return level_text(model)
+    n_fast = int((ranked["level"] == FAST_LEVEL).sum())
+    return (f"{level} single points on GFN2-xTB structures for {len(ranked) - n_fast} of {len(ranked)} ranked "
+            f"rows" + (f"; {n_fast} ranked at GFN2-xTB (their refinement failed; see their message)"
+                       if n_fast else ""))
+
+
 def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.DataFrame,
           settings: dict, versions: dict, profiles, config: dict) -> str:
     counts = table["status"].value_counts().to_dict()
@@ -518,13 +569,13 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
     for section in ("conformers", "optimisation"):
         setting_rows += [(f"{section}.{k}", v) for k, v in settings.get(section, {}).items()]
     setting_rows += [(f"transition_state.{k}", v) for k, v in config["transition_state"].items()]
-    if config["refine"]["top"]:
-        setting_rows += [(f"refine.{k}", v) for k, v in config["refine"].items()]
+    setting_rows += [(f"refine.{k}", v) for k, v in config["refine"].items()]
     conditions = (
         "<div class='conditions'><div>" + depict(dph, reactive, reactive, 160, 110) + "</div><div>"
         f"<b>Dienophile</b> {esc(dph)}<br><b>Temperature</b> {esc(config['temperature_K'])} K · "
         f"<b>Solvent (GFN2-xTB)</b> {esc(config['solvent'])}<br>"
-        f"<b>Scale</b> {esc(scale_line(model).split('; ', 1)[-1])}<br>"
+        f"<b>Level</b> {esc(_level_line(table, model))}<br>"
+        f"<b>Scale</b> {esc(scale_text(model))}<br>"
         f"<b>Intervals</b> {esc(label)} prediction intervals</div></div>")
     parts = [
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>",
@@ -542,7 +593,7 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
         _table(table, f"log10 k relative to 1,3-butadiene ({label} prediction interval). Rows marked "
                       "extrapolation are not backed by the reference set; rows that were not ranked follow "
                       "the ranked ones with their reason."),
-        _refined_table(table),
+        _level_comparison(table),
         "<h2>Plots</h2><div class='grid'>",
         f"<div class='card'>{plot_reference(reference)}</div>",
     ]

@@ -63,11 +63,17 @@ def batch_path(results, stage: str, bid: str) -> Path:
 
 
 def refined_path(results, stem: str, rhash: str) -> Path:
-    return Path(results) / "refined" / f"{stem}_{rhash}.json"
+    """A (structure, dienophile) pair priced at the refined level `rhash`."""
+    return Path(results) / "refined" / rhash / f"{stem}.json"
+
+
+def refined_structure_path(results, key: str, rhash: str) -> Path:
+    """A structure's minima priced at the refined level (shared by every dienophile)."""
+    return Path(results) / "refined" / rhash / "structures" / f"{key}.json"
 
 
 def refined_dienophile_path(results, dhash: str, rhash: str) -> Path:
-    return Path(results) / "refined" / f"dienophile_{dhash}_{rhash}.json"
+    return Path(results) / "refined" / rhash / "dienophiles" / f"{dhash}.json"
 
 
 # ------------------------------------------------------------------ prepare
@@ -160,6 +166,10 @@ def prepare(config: dict, manifest_path, results="results") -> dict:
                 "structures": dict(sorted(structures.items())), "dienophiles": dienophiles,
                 "transitions": dict(sorted(transitions.items())),
                 "batches": {"structures": s_batches, "transition": t_batches}}
+    rows = config["refine"]["rows"]
+    if rows == "all":
+        manifest["batches"]["refine"] = refine_batches(manifest, config, refined_pairs(manifest, config), results)
+    manifest["refine"] = {"rows": rows, "rhash": cfg.refine_hash(config) if rows != "none" else None}
     write_json(manifest, manifest_path)
     return manifest
 
@@ -188,14 +198,16 @@ def drop_stale_batches(results="results") -> list[Path]:
     moved aside as unreadable): the batch then runs again and recomputes just that member."""
     import json
     dropped = []
-    for stage, where in (("structures", structure_path), ("transition", transition_path)):
+    for stage, where in (("structures", structure_path), ("transition", transition_path),
+                         ("refine", refined_path)):
         for flag in sorted((Path(results) / "batches" / stage).glob("*.json")):
             try:
-                members = json.loads(flag.read_text())["members"]
-                names = [m.get("key") or m.get("stem") for m in members]
+                summary = json.loads(flag.read_text())
+                names = [m.get("key") or m.get("stem") for m in summary["members"]]
+                extra = (summary["rhash"],) if stage == "refine" else ()
             except (OSError, ValueError, KeyError, AttributeError):
-                names = [None]
-            if any(n is None or not where(results, n).is_file() for n in names):
+                names, extra = [None], ()
+            if any(n is None or not where(results, n, *extra).is_file() for n in names):
                 flag.unlink(missing_ok=True)
                 dropped.append(flag)
     return dropped
@@ -280,60 +292,127 @@ def compute_transitions(config: dict, manifest_path, bid: str, out_path, results
 
 # -------------------------------------------------------------- refinement
 
+AUTO_REFINE_JOBS = 24    # refined pricing (about a minute a pair) is cut into about this many jobs
+
+
+def refined_pairs(manifest: dict, config: dict, ranking=None) -> list[str]:
+    """The (structure, dienophile) pairs priced at the refined level, by `refine.rows`:
+    'all' every pair of the run (library and reference); 'none' none; an integer N the
+    N best library rows by the GFN2-xTB ranking (needs `ranking`) and every reference pair,
+    so that the refined model can be fitted."""
+    rows = config["refine"]["rows"]
+    if rows == "none":
+        return []
+    if rows == "all":
+        return list(manifest["transitions"])
+    top = ranking[(ranking["status"].isin(("ok", "ts_unverified"))) & ranking["rank"].notna()]
+    stems = list(top.sort_values("rank").head(int(rows))["transition_key"].astype(str))
+    for rec in manifest["reference_records"]:
+        if rec["status"] == "ok":
+            stems += [f"{i['key']}__{rec['dienophile']['thash']}" for i in rec["isomers"]]
+    return list(dict.fromkeys(s for s in stems if s in manifest["transitions"]))
+
+
+def refine_batches(manifest: dict, config: dict, stems: list[str], results="results") -> dict:
+    """Jobs for the pairs whose refined result is absent: {batch id: {members, needs (the
+    transition batches of this run that compute them), dienophiles, rhash}}."""
+    rhash = cfg.refine_hash(config)
+    missing = [s for s in stems if not refined_path(results, s, rhash).is_file()]
+    producer = {stem: bid for bid, b in manifest["batches"]["transition"].items() for stem in b["members"]}
+    size = max(1, math.ceil(len(missing) / AUTO_REFINE_JOBS))
+    out = {}
+    for bid, members in _batches(missing, size, f"refine {rhash}").items():
+        out[bid] = {"members": members, "rhash": rhash,
+                    "needs": sorted({producer[m] for m in members if m in producer}),
+                    "dienophiles": sorted({manifest["transitions"][m]["dhash"] for m in members})}
+    return out
+
+
 def shortlist(config: dict, manifest_path, out_path, results="results") -> dict:
-    """What the refinement computes: every usable reference diene (so that a refined
-    model can be fitted) and the `refine.top` best GFN2-xTB-ranked library rows."""
+    """`refine.rows: N`: the pairs to price (the N best GFN2-xTB-ranked rows and the
+    reference) and the jobs for those not priced yet."""
     write_json, read_json = _json()
     config = cfg.validate(config)
     manifest = read_json(manifest_path)
-    computed = load_computed(manifest, results)
-    table, _, _, ref_table = rank_tables(manifest, computed, config)
-    top = table[(table["status"] == "ok") & table["rank"].notna()].sort_values("rank")
-    top = top.head(int(config["refine"]["top"]))
-    stems = list(dict.fromkeys(top["transition_key"].astype(str)))
-    for rec in manifest["reference_records"]:
-        if rec["status"] == "ok" and rec["isomers"]:
-            stems.append(f"{rec['isomers'][0]['key']}__{rec['dienophile']['thash']}")
-    stems = list(dict.fromkeys(s for s in stems if s in manifest["transitions"]))
-    out = {"rhash": cfg.refine_hash(config), "pairs": stems,
-           "dienophiles": sorted({manifest["transitions"][s]["dhash"] for s in stems}),
-           "library_rows": [int(r) for r in top["row"]], "top": int(config["refine"]["top"])}
+    table = rank_tables(manifest, load_computed(manifest, results), config)[0]
+    stems = refined_pairs(manifest, config, table)
+    out = {"rhash": cfg.refine_hash(config), "rows": config["refine"]["rows"], "pairs": stems,
+           "batches": refine_batches(manifest | {"batches": {"transition": {}}}, config, stems, results)}
     write_json(out, out_path)
     return out
 
 
 def refine_dienophile(config: dict, dienophile_file, out_path, threads: int = 1) -> dict:
-    from .refine import level_settings, refine_dienophile as refine_one
+    """A dienophile priced at the refined level (once per dienophile and level)."""
+    from .refine import level_from_config, price_dienophile
     write_json, read_json = _json()
     config = cfg.validate(config)
-    r = refine_one(read_json(dienophile_file), level_settings(config["refine"]), threads)
+    r = price_dienophile(read_json(dienophile_file), level_from_config(config["refine"], threads))
     write_json(r, out_path)
     return r
 
 
-def refine_pair(config: dict, manifest_path, stem: str, dienophile_refined, out_path,
-                results="results", threads: int = 1) -> dict:
-    """Refined single points of one (structure, dienophile) pair."""
-    from .refine import level_settings, refine_pair as refine_one
+def refine_pair(config: dict, manifest: dict, stem: str, level, results="results") -> dict:
+    """Refined barriers of one (structure, dienophile) pair, written to its result file. The
+    structure's minima are priced once per level and kept for every other dienophile."""
+    from .refine import price_pair, price_structure, sites_to_price
     write_json, read_json = _json()
-    config = cfg.validate(config)
-    task = read_json(manifest_path)["transitions"][stem]
-    r = refine_one(read_json(structure_path(results, task["key"])), read_json(transition_path(results, stem)),
-                   read_json(dienophile_refined), level_settings(config["refine"]), threads)
-    write_json(r, out_path)
-    return r
-
-
-def load_refined(shortlist_path, results="results") -> dict:
-    """Refined pair results by transition stem (a missing file simply is not there)."""
-    _, read_json = _json()
-    if not Path(shortlist_path).is_file():
-        return {}
-    sl = read_json(shortlist_path)
-    out = {}
-    for stem in sl["pairs"]:
+    rhash = cfg.refine_hash(config)
+    task = manifest["transitions"][stem]
+    transition = read_json(transition_path(results, stem))
+    spath = refined_structure_path(results, task["key"], rhash)
+    priced = {}
+    if sites_to_price(transition):      # a diene that cannot react costs no single point
         try:
-            out[stem] = read_json(refined_path(results, stem, sl["rhash"]))
+            priced = read_json(spath)
+        except (FileNotFoundError, ValueError):
+            priced = price_structure(read_json(structure_path(results, task["key"])), level)
+            write_json(priced, spath)
+    dph = read_json(refined_dienophile_path(results, task["dhash"], rhash))
+    r = price_pair(priced, transition, dph, level) | {"stem": stem}
+    write_json(r, refined_path(results, stem, rhash))
+    return r
+
+
+def refine_pairs(config: dict, manifest_path, plan_path, bid: str, out_path, results="results",
+                 threads: int = 1) -> dict:
+    """One refine batch (listed in the manifest, or in the shortlist for refine.rows: N)."""
+    from .refine import level_from_config
+    write_json, read_json = _json()
+    t0 = time.perf_counter()
+    config = cfg.validate(config)
+    manifest = read_json(manifest_path)
+    plan = read_json(plan_path)
+    batch = (plan["batches"]["refine"] if "records" in plan else plan["batches"])[bid]
+    level = level_from_config(config["refine"], threads)
+    done = []
+    for stem in batch["members"]:
+        if refined_path(results, stem, batch["rhash"]).is_file():
+            done.append({"stem": stem, "computed": False})
+            continue
+        r = refine_pair(config, manifest, stem, level, results)
+        done.append({"stem": stem, "computed": True, "status": r["status"], "wall_time_s": r.get("wall_time_s")})
+        log.info("refined %s at %s: %s %s (%.1f s)", stem, r["level"], r["status"], r.get("message", ""),
+                 r.get("wall_time_s", 0.0))
+    summary = _batch_summary("refine", bid, done, t0) | {"rhash": batch["rhash"]}
+    write_json(summary, out_path)
+    return summary
+
+
+def load_refined(manifest: dict, config: dict, results="results", shortlist_path=None) -> dict:
+    """Refined pair results of the run, by transition stem (a missing or unreadable file is
+    simply not there; its rows keep their GFN2-xTB values)."""
+    _, read_json = _json()
+    rows = config["refine"]["rows"]
+    if rows == "none":
+        return {}
+    stems = (refined_pairs(manifest, config) if rows == "all"
+             else read_json(shortlist_path)["pairs"] if shortlist_path and Path(shortlist_path).is_file() else [])
+    rhash = cfg.refine_hash(config)
+    out = {}
+    for stem in stems:
+        try:
+            out[stem] = read_json(refined_path(results, stem, rhash))
         except (FileNotFoundError, ValueError):
             continue
     return out
@@ -368,30 +447,37 @@ def load_computed(manifest: dict, results="results"):
 
 def rank_tables(manifest: dict, computed, config: dict):
     """Fit on the reference records, predict every site, pick each row's best:
-    (ranking table, sites table, model summary, reference table). With refined
-    results present, a refined model is fitted and predicted alongside."""
+    (ranking table, sites table, model summary, reference table).
+
+    The GFN2-xTB model is always fitted (it ranks when the refinement is off, and a row
+    whose refinement failed); with refined results present, a model of the same form is
+    fitted on the refined reference barriers and ranks every site it can price. The
+    summary is the ranking model's, with the GFN2-xTB one under 'fast' beside it."""
     from . import ranking
     fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], computed, config,
                                                     config["dienophile"])
     sites = ranking.site_table(manifest["records"], computed)
     if len(sites):
-        sites = ranking.predict_sites(sites, fit, config, summary)
-    refined_summary = None
-    if computed.refined:
+        sites = ranking.predict_sites(sites, fit, config, summary, "xtb")
+    refined_label = None
+    if any(r.get("status") == "ok" for r in computed.refined.values()):
         try:
-            rfit, refined_summary, rref = ranking.fit_reference(
+            rfit, rsummary, rref = ranking.fit_reference(
                 manifest["reference_records"], computed, config, config["dienophile"], suffix="_refined")
         except ValueError as exc:
-            refined_summary = {"error": str(exc)}
+            summary = summary | {"refined_error": str(exc)}
         else:
             keep = [c for c in ("used", "reason", "log10_k_cv", "log10_k_fit", "log10_k_nested_cv")
                     if c in rref]
             ref_table = ref_table.join(rref[keep].add_suffix("_refined"))
             if len(sites):
-                sites = ranking.predict_sites(sites, rfit, config, refined_summary, prefix="refined")
+                sites = ranking.predict_sites(sites, rfit, config, rsummary, "refined")
+            refined_label = rsummary["level"]
+            summary = rsummary | {"fast": summary}
+    if len(sites):
+        sites = ranking.choose_level(sites, refined_label)
+    summary |= {"ranking_level": refined_label or ranking.FAST_LEVEL, "refine_rows": config["refine"]["rows"]}
     table = ranking.rank_table(manifest["records"], computed, sites)
-    if refined_summary is not None:
-        summary["refined"] = refined_summary
     return table, sites, summary, ref_table
 
 
@@ -401,8 +487,7 @@ def rank(config: dict, manifest_path, out_dir, results="results", shortlist_path
     config = cfg.validate(config)
     manifest = read_json(manifest_path)
     computed = load_computed(manifest, results)
-    if shortlist_path:
-        computed.refined = load_refined(shortlist_path, results)
+    computed.refined = load_refined(manifest, config, results, shortlist_path)
     table, sites, summary, ref_table = rank_tables(manifest, computed, config)
     out_dir = Path(out_dir)
     outputs.write_table(table, out_dir / "ranking.csv")
@@ -443,6 +528,20 @@ def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
     for bid in manifest["batches"]["transition"]:
         compute_transitions(config, cache / "manifest.json", bid, batch_path(cache, "transition", bid), cache)
     computed = load_computed(manifest, cache)
+    if config["refine"]["rows"] != "none":
+        from .refine import level_from_config
+        _, read_json = _json()
+        rows = config["refine"]["rows"]
+        stems = refined_pairs(manifest, config, None if rows == "all" else rank_tables(manifest, computed, config)[0])
+        rhash = cfg.refine_hash(config)
+        level = level_from_config(config["refine"])
+        for stem in stems:
+            dhash = manifest["transitions"][stem]["dhash"]
+            if not refined_dienophile_path(cache, dhash, rhash).is_file():
+                refine_dienophile(config, dienophile_path(cache, dhash), refined_dienophile_path(cache, dhash, rhash))
+            if not refined_path(cache, stem, rhash).is_file():
+                refine_pair(config, manifest, stem, level, cache)
+        computed.refined = {s: read_json(refined_path(cache, s, rhash)) for s in stems}
     table, sites, summary, _ = rank_tables(manifest, computed, config)
     tmp.cleanup()
     return table, sites, summary

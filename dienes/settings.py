@@ -17,6 +17,8 @@ from .paths import workflow_root
 # Bump when a change in the science changes per-structure numbers: old result
 # files then stop matching and are recomputed.
 SCIENCE_VERSION = 3
+# Bump when a change in the pricing at the refined level changes its numbers.
+REFINE_VERSION = 2
 
 SCHEMA_PATH = workflow_root() / "config" / "schema.yaml"
 
@@ -84,6 +86,10 @@ def _coerce(value, schema: dict):
 def validate(config: dict, schema_path=SCHEMA_PATH) -> dict:
     """A validated copy of `config` with schema defaults filled in."""
     cfg = _coerce(copy.deepcopy(config), load_schema(schema_path))
+    if isinstance(cfg.get("refine"), dict) and "top" in cfg["refine"]:
+        raise ConfigError("invalid configuration: refine/top was replaced by refine/rows: all (the default: "
+                          "every diene at the refined level), none (GFN2-xTB only) or N (the N best by "
+                          "GFN2-xTB)")
     errors = sorted(_with_defaults(Draft202012Validator)(load_schema(schema_path)).iter_errors(cfg),
                     key=lambda e: list(e.path))
     if errors:
@@ -134,6 +140,7 @@ def transition_hash(config: dict, dienophile_smiles: str) -> str:
 
 
 def refine_hash(config: dict) -> str:
-    """Names refined result files: the density-functional level and the science version."""
-    return settings_hash({"refine": {k: v for k, v in config["refine"].items() if k != "top"},
-                          "science_version": SCIENCE_VERSION})
+    """Names the folder of refined results: the level's settings, code defaults included
+    (which rows are refined does not change a priced number)."""
+    from .refine import level_settings
+    return settings_hash({"level": level_settings(config["refine"]).as_dict(), "version": REFINE_VERSION})

@@ -1,8 +1,11 @@
-"""Known reactivity facts through the whole in-process ranking (slow).
+"""Known reactivity facts through the whole in-process ranking at the fast level (slow).
 
 One in-process run ranks a panel with the shipped reference set (maleic
-anhydride). Where both dienes of a fact are in the reference set they are left
-out of the fit, so the fact is predicted, not fitted. Sources beside each fact.
+anhydride) at GFN2-xTB alone (refine.rows: none: a density-functional
+pricing of 28 pairs does not fit in CI), so these are the facts the quick
+screen gets right, and the one it gets wrong is a strict xfail. Where both
+dienes of a fact are in the reference set they are left out of the fit, so
+the fact is predicted, not fitted. Sources beside each fact.
 """
 import csv
 from pathlib import Path
@@ -36,7 +39,8 @@ def panel(tmp_path_factory, config):
         w = csv.writer(fh)
         w.writerow(["id", "smiles"])
         w.writerows(PANEL)
-    cfg = dict(config, library=str(lib), reference=str(Path(REPO) / "config" / "reference_rates.csv"))
+    cfg = dict(config, library=str(lib), reference=str(Path(REPO) / "config" / "reference_rates.csv"),
+               refine=dict(config["refine"], rows="none"))
     return cfg, d
 
 

@@ -53,8 +53,14 @@ def test_sdf_read_by_rdkit_and_open_babel(run_dir):
     assert all(m.HasProp("in_domain") for m in mols)
     assert all(m.GetConformer().Is3D() for m in mols)
     butadiene = [m for m in mols if m.GetProp("id") == "R-1"]
-    assert float(butadiene[0].GetProp("scis_penalty_kJmol")) == pytest.approx(
-        float(next(r for r in ranked if r["id"] == "R-1")["scis_penalty_kJmol"]), abs=1e-3)
+    row = next(r for r in ranked if r["id"] == "R-1")
+    assert float(butadiene[0].GetProp("scis_penalty_gfn2_xtb_kJmol")) == pytest.approx(
+        float(row["scis_penalty_kJmol"]), abs=1e-3)
+    # every number names its level: the barrier the rank rests on is the refined one
+    assert butadiene[0].GetProp("level") == row["level"] == "B3LYP/STO-3G"
+    assert float(butadiene[0].GetProp("barrier_at_level_kJmol")) == pytest.approx(
+        float(row["barrier_refined_kJmol"]), abs=1e-3)
+    assert "ranked at B3LYP/STO-3G" in butadiene[0].GetProp("_Name")
     # Open Babel in its own process: its bundled libraries do not share one with xtb
     code = ("import json,sys; from openbabel import pybel; ms=list(pybel.readfile('sdf', sys.argv[1])); "
             "print(json.dumps([[m.OBMol.NumAtoms(), m.data['id']] for m in ms]))")

@@ -16,7 +16,10 @@ from .conftest import REPO
 
 pytestmark = pytest.mark.slow
 
-REFERENCE_IDS = {"ref-01", "ref-02", "ref-03", "ref-04", "ref-05", "ref-09"}
+# neither butadiene nor cyclopentadiene: their order in the library is predicted, not fitted
+REFERENCE_IDS = {"ref-02", "ref-03", "ref-04", "ref-05", "ref-06"}
+# the refined level at a minimal basis: the whole refined path runs, in seconds per structure
+SMALL_LEVEL = {"rows": "all", "method": "b3lyp", "basis": "sto-3g", "dispersion": "none", "solvent": "none"}
 
 
 def _write_reference(path: Path, ids):
@@ -36,12 +39,15 @@ def _setup_library(tmp_path, rows):
 
 
 def _setup(tmp_path: Path, library_rows, **config_updates):
+    config_updates = dict(config_updates)
     (tmp_path / "config").mkdir(exist_ok=True)
     _write_reference(tmp_path / "config" / "reference.csv", REFERENCE_IDS)
     _setup_library(tmp_path, library_rows)
     cfg = yaml.safe_load(open(Path(REPO) / "config" / "config.yaml"))
-    cfg.update(library="lib.csv", reference="config/reference.csv", **config_updates)
+    cfg.update(library="lib.csv", reference="config/reference.csv",
+               **{k: v for k, v in config_updates.items() if k != "refine"})
     cfg["conformers"].update(n_conformers=4, xtb_per_family=1, planar_starts=1)
+    cfg["refine"] = dict(SMALL_LEVEL) | config_updates.get("refine", {})
     (tmp_path / "config" / "config.yaml").write_text(yaml.safe_dump(cfg))
 
 
@@ -72,6 +78,11 @@ def computed_in(tmp_path, since_ns: int) -> Counter:
     return out
 
 
+def _refined_files(tmp_path) -> dict:
+    return {p.relative_to(tmp_path / "results" / "refined"): p.stat().st_mtime_ns
+            for p in (tmp_path / "results" / "refined").rglob("*.json")}
+
+
 def test_tiny_library_end_to_end_and_incremental(tmp_path):
     _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b"), ("T-3", "C1=CC=C", "c")])
     run = _snakemake(tmp_path)
@@ -80,12 +91,16 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     assert [r["id"] for r in rows] == ["T-1", "T-2", "T-3"]
     assert [r["status"] for r in rows] == ["ok", "ok", "invalid_smiles"]
     assert rows[2]["message"].startswith("RDKit:") and rows[2]["rank"] == ""
-    # cyclopentadiene reacts faster than butadiene (about 1000-fold with maleic anhydride; reference set)
+    # every reactive row is ranked at the refined level, and says so; the GFN2-xTB rank stands beside it
+    model = json.loads((tmp_path / "results" / "model.json").read_text())
+    assert model["ranking_level"] == "B3LYP/STO-3G" and model["features"] == ["barrier_refined_kJmol"]
+    assert model["fast"]["level"] == "GFN2-xTB" and model["n_reference"] == 5
+    assert [r["level"] for r in rows[:2]] == ["B3LYP/STO-3G"] * 2
+    assert all(r["barrier_refined_kJmol"] and r["rank_xtb"] for r in rows[:2])
+    # cyclopentadiene reacts faster than butadiene (about 1000-fold with maleic anhydride; Sauer &
+    # Sustmann 1980, from memory; common practice); neither is in the fitted reference set here
     assert rows[1]["rank"] == "1" and rows[0]["rank"] == "2"
     assert rows[0]["note"] == "a"                              # extra columns carried through
-    # butadiene s-cis penalty: 12-14 kJ/mol from rotational spectroscopy (docs/validation.md);
-    # GFN2-xTB gives about 9; a value outside 6-16 means the planar search broke
-    assert 6.0 <= float(rows[0]["scis_penalty_kJmol"]) <= 16.0
     assert rows[0]["ts_verified"] == "True" and float(rows[0]["ts_imag_cm1"]) < -100
     structures = sorted((tmp_path / "results" / "structures").glob("*.json"))
     assert all("T-" not in p.name for p in structures)        # named by structure, not by id
@@ -97,36 +112,64 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     run = _snakemake(tmp_path)
     assert run.returncode == 0 and "Nothing to be done" in run.stderr
 
-    # a new diene arrives: one structure and one transition structure are computed, nothing else
+    # a new diene arrives: one structure, one transition structure and one pricing, nothing else
     _setup_library(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b"), ("T-3", "C1=CC=C", "c"),
                               ("T-4", "C=CC(Cl)=C", "d")])
     t0 = max(p.stat().st_mtime_ns for p in (tmp_path / "results").rglob("*.json"))
+    refined_before = _refined_files(tmp_path)
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
-    assert jobs_run(run) == Counter(prepare=1, compute_structures=1, compute_transitions=1, rank=1, report=1)
+    assert jobs_run(run) == Counter(prepare=1, compute_structures=1, compute_transitions=1, refine_pairs=1,
+                                    rank=1, report=1)
     assert computed_in(tmp_path, t0) == Counter(structures=1, transition=1)
     after = sorted((tmp_path / "results" / "structures").glob("*.json"))
     assert len(after) == len(structures) + 1
     assert all(p.stat().st_mtime_ns == mtimes[p.name] for p in after if p.name in mtimes)
+    refined_after = _refined_files(tmp_path)
+    assert all(refined_after[p] == t for p, t in refined_before.items())   # priced files untouched
+    assert len(refined_after) == len(refined_before) + 2                   # the new pair and its diene
     assert [r["id"] for r in _ranking(tmp_path)] == ["T-1", "T-2", "T-3", "T-4"]
 
-    # a new reference file of known dienes: the model is refitted, no GFN2-xTB work
+    # a new reference file of known dienes: the models are refitted, nothing is computed
     _write_reference(tmp_path / "config" / "reference.csv", REFERENCE_IDS - {"ref-05"})
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
     assert jobs_run(run) == Counter(prepare=1, rank=1, report=1)
-    assert json.loads((tmp_path / "results" / "model.json").read_text())["n_reference"] == 5
+    assert json.loads((tmp_path / "results" / "model.json").read_text())["n_reference"] == 4
 
-    # another dienophile: its own minimum and the library's transition structures only;
-    # conformers and the reference set's transition structures (their own dienophile) are reused
+    # another refined level: every pair is priced again, no GFN2-xTB work
+    run = _snakemake(tmp_path, "--config", "refine={basis: 3-21g}")
+    assert run.returncode == 0, run.stderr[-3000:]
+    jobs = jobs_run(run)
+    assert "compute_structures" not in jobs and "compute_transitions" not in jobs
+    assert jobs["refine_dienophile"] == 1 and jobs["refine_pairs"] == 7     # 3 library + 4 reference pairs, one job each
+    assert {r["level"] for r in _ranking(tmp_path) if r["rank"]} == {"B3LYP/3-21G"}
+
+    # another dienophile: its own minimum, the library's transition structures and their pricing;
+    # conformers, the dienes' priced minima and the reference set (its own dienophile) are reused
     t0 = max(p.stat().st_mtime_ns for p in (tmp_path / "results").rglob("*.json"))
+    n_priced_dienes = len(list((tmp_path / "results" / "refined").glob("*/structures/*.json")))
     run = _snakemake(tmp_path, "--config", "dienophile=C=CC#N")
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
     assert "compute_structures" not in jobs and jobs["compute_dienophile"] == 1
+    assert jobs["refine_dienophile"] == 1 and jobs["refine_pairs"] == 3
     assert computed_in(tmp_path, t0) == Counter(transition=3)   # butadiene, cyclopentadiene, chloroprene
+    assert len(list((tmp_path / "results" / "refined").glob("*/structures/*.json"))) == n_priced_dienes
     model = json.loads((tmp_path / "results" / "model.json").read_text())
     assert model["run_dienophile"] == "C=CC#N" and model["note"]  # not the reference dienophile: said so
+
+
+def test_the_quick_screen_is_labelled_as_the_fast_level(tmp_path):
+    _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b")], refine={"rows": "none"})
+    run = _snakemake(tmp_path)
+    assert run.returncode == 0, run.stderr[-3000:]
+    jobs = jobs_run(run)
+    assert "refine_pairs" not in jobs and "refine_dienophile" not in jobs
+    rows = _ranking(tmp_path)
+    assert {r["level"] for r in rows} == {"GFN2-xTB"} and all(r["rank"] for r in rows)
+    assert json.loads((tmp_path / "results" / "model.json").read_text())["ranking_level"] == "GFN2-xTB"
+    assert "GFN2-xTB level only" in (tmp_path / "results" / "report.html").read_text()
 
 
 def test_unreadable_library_stops_before_computing(tmp_path):

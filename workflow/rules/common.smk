@@ -31,8 +31,8 @@ if workflow.is_main_process:
 CONFIG_HASH = dienes_settings.settings_hash(config | {"version": dienes.__version__})
 
 
-REFINE = config["refine"]["top"] > 0
-REFINE_HASH = dienes_settings.refine_hash(config)
+# which rows are priced at the refined level: all (default), none, or the N best by GFN2-xTB
+REFINE_ROWS = config["refine"]["rows"]
 
 
 # cheap whole-run steps stay on the submit host when a cluster executor is used
@@ -48,7 +48,6 @@ wildcard_constraints:
     bid=r"[0-9a-f]{12}",
     dhash=r"[0-9a-f]{10}",
     rhash=r"[0-9a-f]{10}",
-    stem=r"[A-Z]{14}-[A-Z]{10}-[A-Z]_[0-9a-f]{10}__[0-9a-f]{10}",
 
 
 def manifest():
@@ -77,7 +76,7 @@ def get_transition_input(wildcards):
 def batch_runtime(stage, minutes_each):
     """Cluster runtime (minutes) of a batch job: minutes_each per member, at least 10."""
     def runtime(wildcards):
-        batch = manifest()["batches"][stage][wildcards.bid]
+        batch = (refine_plan() if stage == "refine" else manifest()["batches"][stage])[wildcards.bid]
         members = batch["members"] if isinstance(batch, dict) else batch
         return max(10, minutes_each * len(members))
     return runtime
@@ -90,15 +89,23 @@ def get_rank_input(wildcards):
             + [f"results/dienophiles/{d}.json" for d in m["dienophiles"]])
 
 
-def get_refine_dienophile(wildcards):
-    dhash = manifest()["transitions"][wildcards.stem]["dhash"]
-    return f"results/refined/dienophile_{dhash}_{wildcards.rhash}.json"
+def refine_plan() -> dict:
+    """The refine batches of this run: listed in the manifest (refine.rows: all), in the
+    shortlist checkpoint (refine.rows: N), or none."""
+    if REFINE_ROWS == "none":
+        return {}
+    if REFINE_ROWS == "all":
+        return manifest()["batches"]["refine"]
+    return json.loads(Path(checkpoints.shortlist.get().output[0]).read_text())["batches"]
+
+
+def get_refine_input(wildcards):
+    batch = refine_plan()[wildcards.bid]
+    return ([batch_flag("transition", b) for b in batch["needs"]]
+            + [f"results/refined/{batch['rhash']}/dienophiles/{d}.json" for d in batch["dienophiles"]])
 
 
 def get_refined_input(wildcards):
-    """The shortlist and its refined results (nothing when the refinement is off)."""
-    if not REFINE:
-        return []
-    path = checkpoints.shortlist.get().output[0]
-    sl = json.loads(Path(path).read_text())
-    return [path] + [f"results/refined/{s}_{sl['rhash']}.json" for s in sl["pairs"]]
+    """The refine batches the ranking waits for (and the shortlist, for refine.rows: N)."""
+    shortlist = [checkpoints.shortlist.get().output[0]] if REFINE_ROWS not in ("all", "none") else []
+    return shortlist + [batch_flag("refine", bid) for bid in refine_plan()]

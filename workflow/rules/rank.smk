@@ -5,7 +5,7 @@ rule rank:
         refined=get_refined_input,
     params:
         config_hash=CONFIG_HASH,
-        shortlist="results/shortlist.json" if REFINE else None,
+        shortlist="results/shortlist.json" if REFINE_ROWS not in ("all", "none") else None,
     output:
         ranking="results/ranking.csv",
         sites="results/sites.csv",

@@ -1,5 +1,8 @@
-# Density-functional refinement of a shortlist (config refine.top > 0): one job per
-# dienophile and one per (structure, dienophile) pair, cached by the level's hash.
+# Pricing at the refined level (PySCF single points on the GFN2-xTB structures). The pairs
+# still to price are cut into batches like the other stages (listed in the manifest for
+# refine.rows: all, in the shortlist checkpoint for refine.rows: N); each dienophile is priced
+# once. Results live under results/refined/<level hash>/, so another level or more dienes
+# compute only what is new.
 
 
 checkpoint shortlist:
@@ -22,32 +25,33 @@ rule refine_dienophile:
     input:
         "results/dienophiles/{dhash}.json",
     output:
-        "results/refined/dienophile_{dhash}_{rhash}.json",
+        "results/refined/{rhash}/dienophiles/{dhash}.json",
     conda:
         "../envs/dienes.yaml"
     log:
-        "logs/refined/dienophile_{dhash}_{rhash}.log",
-    threads: 2
+        "logs/refined/{rhash}/dienophile_{dhash}.log",
+    threads: 1
     resources:
-        mem_mb=4000,
-        runtime=60,
+        mem_mb=3000,
+        runtime=30,
     script:
         "../scripts/refine_dienophile.py"
 
 
-rule refine_pair:
+rule refine_pairs:
     input:
         manifest=ancient(MANIFEST),
-        dienophile=get_refine_dienophile,
+        plan=ancient(MANIFEST if REFINE_ROWS == "all" else "results/shortlist.json"),
+        needs=get_refine_input,
     output:
-        "results/refined/{stem}_{rhash}.json",
+        batch_flag("refine", "{bid}"),
     conda:
         "../envs/dienes.yaml"
     log:
-        "logs/refined/{stem}_{rhash}.log",
-    threads: 2
+        "logs/refine/{bid}.log",
+    threads: 1
     resources:
-        mem_mb=4000,
-        runtime=240,
+        mem_mb=3000,
+        runtime=batch_runtime("refine", 10),
     script:
-        "../scripts/refine_pair.py"
+        "../scripts/refine_pairs.py"

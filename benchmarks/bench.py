@@ -51,17 +51,19 @@ LANDED = {"density_fit": False, "grid_level": 3, "conv_tol_hartree": 1e-8}
 
 
 def time_refinement(smiles: str, structure: dict, ts: dict, dph: dict, config: dict, threads: int) -> dict:
-    """Today's pricing of one diene and the landed refinement's five kinds of single point,
-    timed on the same structures (the dienophile's single point is paid once per run by both
-    and left out)."""
+    """Today's pricing of one diene (its single points and the GFN2-xTB Hessians of the thermal
+    corrections) and the landed refinement's five kinds of single point, timed on the same
+    structures (the dienophile is paid once per run by both and left out)."""
     from dienes import refine
     from dienes.backends import DFTLevel
+    from dienes.run import thermal_source
     today = DFTLevel(refine.level_settings(config["refine"]), threads)
     landed = DFTLevel(refine.level_settings(config["refine"] | LANDED), threads)
-    dph_priced = refine.price_dienophile(dph, today)
+    thermal = thermal_source(config)
+    dph_priced = refine.price_dienophile(dph, today, thermal)
     t = time.perf_counter()
-    priced = refine.price_structure(structure, today)
-    pair = refine.price_pair(priced, ts, dph_priced, today)
+    priced = refine.price_structure(structure, today, thermal)
+    pair = refine.price_pair(priced, ts, dph_priced, today, thermal)
     t_today = time.perf_counter() - t
     n_today = len(priced["single_points"]) + len(pair["single_points"])
     geo = structure["geometry"]

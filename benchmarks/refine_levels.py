@@ -74,7 +74,7 @@ def parse_level(text: str) -> dict:
     out = {"rows": "all", "method": method, "basis": basis, "dispersion": "none", "solvent": "none"}
     for o in opts:
         k, v = o.split("=")
-        out[{"grid": "grid_level"}.get(k, k)] = int(v) if v.isdigit() else v
+        out[{"grid": "grid_level", "conv": "conv_tol_hartree"}.get(k, k)] = int(v) if v.isdigit() else float(v)
     return out
 
 
@@ -171,7 +171,7 @@ def barrier_variants(priced: dict, structure: dict, dienophile: dict, dhash: str
                      base: Path, T: float, method: str) -> dict | None:
     """Every barrier variant (kJ/mol) of one pair at one level, with its enthalpy twin."""
     pair = priced["pair"]
-    ok = [(s["barrier_refined_kJmol"], lab) for lab, s in pair.get("sites", {}).items() if s.get("status") == "ok"]
+    ok = [(s["electronic_barrier_kJmol"], lab) for lab, s in pair.get("sites", {}).items() if s.get("status") == "ok"]
     if pair.get("status") != "ok" or not ok:
         return None
     e_bar, label = min(ok)
@@ -226,7 +226,8 @@ def reference_figures(names, x, y, T_ref) -> dict:
 def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--results", default="results", help="results/ of a finished demo run (default: results)")
-    ap.add_argument("--level", action="append", required=True, help="method/basis[/grid=N]")
+    ap.add_argument("--level", action="append", required=True, help="method/basis[/grid=N][/conv=1e-8]")
+    ap.add_argument("--reference-only", action="store_true", help="only the reference dienes (no extra orders)")
     ap.add_argument("--threads", type=int, default=1)
     ap.add_argument("--gas-phase", action="store_true", help="also the measured gas-phase kinetics")
     ap.add_argument("--json", help="write every figure to this file")
@@ -236,6 +237,8 @@ def main():
     st = cfg.structure_settings(config)
     manifest = read_json(results / "manifest.json")
     pairs = demo_pairs(results, manifest)
+    if args.reference_only:
+        pairs = {n: p for n, p in pairs.items() if p[2]["id"].startswith("ref-")}
     measurements = read_measurements(GAS_PHASE) if args.gas_phase else []
     gas = gas_phase_pairs(results, config, measurements) if measurements else {}
     report = {}

@@ -41,8 +41,8 @@ SOLVENTS = {
 
 # Density-functional single points: integration grid and SCF energy tolerance, chosen by
 # their measured effect on barriers over the reference set (docs/validation.md).
-DFT_GRID_LEVEL = 2
-DFT_CONV_TOL_HARTREE = 1e-7
+DFT_GRID_LEVEL = 1
+DFT_CONV_TOL_HARTREE = 1e-6
 
 # Electronic temperatures tried in turn when the SCF does not converge (K).
 ELECTRONIC_TEMPERATURES_K = (300.0, 1000.0, 3000.0)

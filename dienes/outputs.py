@@ -98,7 +98,9 @@ def level_text(summary: dict) -> str:
     if level == FAST_LEVEL:
         return ("barriers at the GFN2-xTB level only: a quick screen (GFN2-xTB over-rewards alkyl groups "
                 "and large flat dienes; rank with refine.rows: all before trusting the top)")
-    return f"barriers priced at {level} on GFN2-xTB structures (rows marked * fell back to GFN2-xTB)"
+    kind = ("free-energy barriers (GFN2-xTB thermal corrections)" if summary.get("barrier_kind") == "free_energy"
+            else "electronic barriers")
+    return f"{kind} priced at {level} on GFN2-xTB structures (rows marked * fell back to GFN2-xTB)"
 
 
 def scale_line(summary: dict) -> str:

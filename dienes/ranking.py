@@ -23,7 +23,9 @@ TS_COLUMNS = ("barrier_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
               "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
               "model_barrier_kJmol", "ts_imag_cm1", "face_gap_kJmol", "orientation_gap_kJmol")
 RANKED_STATUSES = ("ok", "ts_unverified")
-REFINED_COLUMNS = ("barrier_refined_kJmol", "contact_dispersion_kJmol")
+REFINED_COLUMNS = ("barrier_refined_kJmol", "electronic_barrier_refined_kJmol", "contact_dispersion_kJmol")
+# the refined barrier the model uses, by the config's refine.barrier
+BARRIER_KINDS = {"free_energy": "free_energy_barrier_kJmol", "electronic": "electronic_barrier_kJmol"}
 FAST_LEVEL = "GFN2-xTB"
 # the chosen level's prediction columns, each from its per-level column (see level_column)
 PREDICTION_COLUMNS = ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage", "in_domain", "domain_note")
@@ -46,6 +48,7 @@ class Computed:
     transitions: dict = field(default_factory=dict)
     dienophiles: dict = field(default_factory=dict)
     refined: dict = field(default_factory=dict)
+    barrier: str = "free_energy"        # which refined barrier the model uses (refine.barrier)
 
     def transition(self, key: str, thash: str) -> dict:
         return self.transitions.get(f"{key}__{thash}", {"status": "missing", "sites": {}})
@@ -100,9 +103,9 @@ def site_features(site: dict, dienophile: dict, ts_site: dict | None, smiles: st
     return out
 
 
-def refined_features(refined: dict | None, label: str) -> dict:
-    """The refined-level barrier of a site (NaN where the site was not priced), the
-    level's name, and why not where it was not."""
+def refined_features(refined: dict | None, label: str, barrier: str = "free_energy") -> dict:
+    """The refined-level barrier of a site (`barrier`: free_energy or electronic; NaN where
+    the site was not priced), the level's name, and why not where it was not."""
     out = {c: float("nan") for c in REFINED_COLUMNS}
     out.update(refine_status="", refine_message="", refined_level="")
     if refined is None:
@@ -116,9 +119,12 @@ def refined_features(refined: dict | None, label: str) -> dict:
                                  "site not priced: its GFN2-xTB barrier lies well above the best site's")
     elif site.get("status") != "ok":
         out.update(refine_status=site.get("status", ""), refine_message=site.get("message", ""))
+    elif BARRIER_KINDS[barrier] not in site:
+        out.update(refine_status="no_thermal", refine_message="no thermal correction was priced for this site")
     else:
-        out.update({c: float(site[c]) for c in REFINED_COLUMNS})
-        out["refine_status"] = "ok"
+        out.update(barrier_refined_kJmol=float(site[BARRIER_KINDS[barrier]]),
+                   electronic_barrier_refined_kJmol=float(site["electronic_barrier_kJmol"]),
+                   contact_dispersion_kJmol=float(site["contact_dispersion_kJmol"]), refine_status="ok")
     return out
 
 
@@ -143,7 +149,8 @@ def record_sites(rec: dict, computed: Computed) -> list[dict]:
             if site["status"] == "ok" and dph is not None:
                 row.update(site_features(site, dph, ts.get("sites", {}).get(site["label"]), iso["smiles"]))
                 row["regio_hint"] = site_regio_hint(site, dph, row["demand"])
-                row.update(refined_features(computed.refined.get(row["transition_key"]), site["label"]))
+                row.update(refined_features(computed.refined.get(row["transition_key"]), site["label"],
+                                            computed.barrier))
             else:
                 row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
                             "lumo_eV": site["lumo_eV"], "ts_status": "not_computed"})
@@ -355,7 +362,8 @@ RANKING_COLUMNS = ["rank", "id", "level", "in_domain", "smiles", "status", "mess
                    "n_sites", "dihedral_min_deg", "isomer_smiles", "n_isomers", "structure_key",
                    "transition_key", "n_gradients", "converged", "dienophile", "row",
                    "rank_xtb", "log10_k_xtb", "log10_k_xtb_low", "log10_k_xtb_high", "in_domain_xtb",
-                   "refined_level", "refine_status", "refine_message", "contact_dispersion_kJmol", "aromatic"]
+                   "refined_level", "refine_status", "refine_message", "electronic_barrier_refined_kJmol",
+                   "contact_dispersion_kJmol", "aromatic"]
 BEST_SITE_COLUMNS = [c for c in RANKING_COLUMNS if c not in (
     "rank", "id", "smiles", "status", "message", "best_site", "n_sites", "n_isomers", "structure_key",
     "n_gradients", "converged", "row", "rank_xtb")]

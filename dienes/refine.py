@@ -26,7 +26,15 @@ GFN2-xTB, named so; the barrier from the global minimum already contains the
 penalty) and the cycloadduct (the reaction energy column stays at GFN2-xTB).
 Each would cost a single point per diene without changing the ranking.
 
-barrier_refined (kJ/mol) = E(TS) - E(lowest priced diene minimum) - E(dienophile)
+Barriers (kJ/mol) at the level, per priced site:
+
+- electronic: E(TS) - E(lowest priced diene minimum) - E(dienophile);
+- free energy: [E + G_corr](TS) - G(diene) - [E + G_corr](dienophile), where G_corr is
+  the thermal correction of each structure from GFN2-xTB harmonic wavenumbers
+  (:mod:`dienes.thermo`: quasi-RRHO, 1 mol/L, the run's temperature) and the diene is the
+  Boltzmann ensemble of its priced minima, G(diene) = -RT ln sum exp(-[E + G_corr]_i / RT):
+  a flexible diene pays for the torsions and conformers it gives up, which cyclopentadiene
+  never had. The config's ``refine.barrier`` names the one the model uses.
 
 An SCF that does not converge (after the second-order fallback) gives the
 status ``scf_failed`` naming the structure; the row then keeps its GFN2-xTB
@@ -35,9 +43,12 @@ values and says so.
 
 from __future__ import annotations
 
+import math
 import time
+from dataclasses import dataclass
 
-from .backends import DFTLevel, DFTSettings, d3_dispersion_kJmol
+from .backends import DFTLevel, DFTSettings, Settings as BackendSettings, d3_dispersion_kJmol
+from .units import rt_kjmol
 
 SITE_WINDOW_KJMOL = 15.0          # sites priced: GFN2-xTB barrier within this of the site's best
 PRICED_SITE_STATUSES = ("ok", "ts_unverified")
@@ -60,6 +71,34 @@ def level_from_config(refine: dict, threads: int | None = None):
     return DFTLevel(level_settings(refine), threads)
 
 
+@dataclass
+class Thermal:
+    """Where thermal corrections come from: GFN2-xTB (these backend settings) at temperature_K."""
+
+    backend: BackendSettings
+    temperature_K: float
+
+
+def thermal_correction_kJmol(numbers, positions_A, thermal: Thermal) -> float:
+    """G - E (kJ/mol) of one structure: GFN2-xTB finite-difference Hessian, harmonic
+    wavenumbers, quasi-RRHO, 1 mol/L standard state (dienes.thermo)."""
+    from ase.data import atomic_masses
+    from .backends import Molecule
+    from .optimize import backend_energy_forces
+    from .saddle import analyse_vibrations
+    from .thermo import thermal_correction
+    vib = analyse_vibrations(numbers, positions_A, backend_energy_forces(Molecule(numbers, thermal.backend)))
+    masses = [atomic_masses[int(z)] for z in numbers]
+    return thermal_correction(vib.frequencies_cm1, masses, positions_A, thermal.temperature_K).free_energy_kJmol
+
+
+def ensemble_free_energy_kJmol(free_energies_kJmol, temperature_K: float) -> float:
+    """-RT ln sum exp(-G_i / RT): the free energy of a set of conformers (kJ/mol)."""
+    g = list(free_energies_kJmol)
+    low = min(g)
+    return low - rt_kjmol(temperature_K) * math.log(sum(math.exp(-(x - low) / rt_kjmol(temperature_K)) for x in g))
+
+
 class SCFFailure(RuntimeError):
     """A single point at the level did not converge."""
 
@@ -78,22 +117,25 @@ def _result(level, **fields) -> dict:
     return {"level": level.label(), "settings": level.as_dict(), "status": "ok", "message": ""} | fields
 
 
-def price_dienophile(dienophile: dict, level) -> dict:
-    """Energy (kJ/mol) of a dienophile at its GFN2-xTB minimum, at `level`."""
+def price_dienophile(dienophile: dict, level, thermal: Thermal | None = None) -> dict:
+    """Energy (kJ/mol) of a dienophile at its GFN2-xTB minimum, at `level` (and its thermal
+    correction when `thermal` is given)."""
     t0 = time.perf_counter()
     log: list = []
     out = _result(level, smiles=dienophile["smiles"], single_points=log)
+    geo = dienophile["geometry"]
     try:
-        out["energy_kJmol"] = round(_energy(level, dienophile["geometry"]["numbers"],
-                                            dienophile["geometry"]["minimum_A"], "dienophile minimum", log), 4)
+        out["energy_kJmol"] = round(_energy(level, geo["numbers"], geo["minimum_A"], "dienophile minimum", log), 4)
     except SCFFailure as exc:
         out |= {"status": "scf_failed", "message": str(exc)}
+    if thermal is not None:
+        out["g_corr_kJmol"] = round(thermal_correction_kJmol(geo["numbers"], geo["minimum_A"], thermal), 4)
     return out | {"wall_time_s": round(time.perf_counter() - t0, 2)}
 
 
-def price_structure(structure: dict, level) -> dict:
+def price_structure(structure: dict, level, thermal: Thermal | None = None) -> dict:
     """Energies (kJ/mol) of a diene's lowest GFN2-xTB minima at `level`; the priced
-    minimum is the lowest of them."""
+    minimum is the lowest of them. With `thermal`, each minimum's thermal correction too."""
     t0 = time.perf_counter()
     log: list = []
     out = _result(level, key=structure.get("key", ""), single_points=log)
@@ -107,8 +149,15 @@ def price_structure(structure: dict, level) -> dict:
         return out | {"status": "scf_failed", "message": str(exc),
                       "wall_time_s": round(time.perf_counter() - t0, 2)}
     best = min(range(len(minima)), key=minima.__getitem__)
-    return out | {"minima_kJmol": [round(e, 4) for e in minima], "energy_min_kJmol": round(minima[best], 4),
-                  "minimum_index": best, "wall_time_s": round(time.perf_counter() - t0, 2)}
+    out |= {"minima_kJmol": [round(e, 4) for e in minima], "energy_min_kJmol": round(minima[best], 4),
+            "minimum_index": best}
+    if thermal is not None:
+        out["g_corr_kJmol"] = [round(thermal_correction_kJmol(geo["numbers"], pos, thermal), 4)
+                               for pos in geo.get("low_minima_A") or [geo["minimum_A"]]]
+        out["temperature_K"] = thermal.temperature_K
+        out["free_energy_kJmol"] = round(ensemble_free_energy_kJmol(
+            [e + g for e, g in zip(minima, out["g_corr_kJmol"])], thermal.temperature_K), 4)
+    return out | {"wall_time_s": round(time.perf_counter() - t0, 2)}
 
 
 def sites_to_price(transition: dict) -> list[str]:
@@ -131,9 +180,11 @@ def contact_dispersion(transition: dict, label: str) -> float:
             - d3_dispersion_kJmol(numbers[nd:], pos[nd:]))
 
 
-def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict, level) -> dict:
+def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict, level,
+               thermal: Thermal | None = None) -> dict:
     """Barriers (kJ/mol) at `level` of every priced site of one (diene, dienophile) pair,
-    from the diene's and the dienophile's priced minima."""
+    from the diene's and the dienophile's priced minima: electronic, and with `thermal`
+    (and thermal corrections priced for both partners) the free-energy barrier too."""
     t0 = time.perf_counter()
     log: list = []
     out = _result(level, key=transition.get("key", ""), dienophile=transition.get("dienophile", ""),
@@ -154,9 +205,14 @@ def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict
         except SCFFailure as exc:
             out["sites"][label] = {"status": "scf_failed", "message": str(exc)}
             continue
-        out["sites"][label] = {"status": "ok", "barrier_refined_kJmol": round(e_ts - e_ref, 3),
+        out["sites"][label] = {"status": "ok", "electronic_barrier_kJmol": round(e_ts - e_ref, 3),
                                "ts_status": site["status"],
                                "contact_dispersion_kJmol": round(contact_dispersion(transition, label), 3)}
+        if thermal is not None and "free_energy_kJmol" in structure_priced and "g_corr_kJmol" in dienophile_priced:
+            g_ts = thermal_correction_kJmol(transition["numbers"], site["positions_A"], thermal)
+            g_dph = dienophile_priced["energy_kJmol"] + dienophile_priced["g_corr_kJmol"]
+            out["sites"][label] |= {"g_corr_ts_kJmol": round(g_ts, 3), "free_energy_barrier_kJmol": round(
+                e_ts + g_ts - structure_priced["free_energy_kJmol"] - g_dph, 3)}
     if not any(s["status"] == "ok" for s in out["sites"].values()):
         out |= {"status": "scf_failed", "message": "; ".join(s["message"] for s in out["sites"].values())}
     return out | {"minimum_index": structure_priced["minimum_index"],

@@ -78,9 +78,12 @@ GLOSSARY_COLUMNS = {
     "level": "the level of theory the row's rank, log10 k and barrier come from: the refined level "
              "(a density functional on the GFN2-xTB structures) for every row it could price, GFN2-xTB "
              "where that failed (the message says why) or where the run asked for GFN2-xTB only",
-    "barrier": "E(transition structure) − E(diene's lowest conformer) − E(dienophile), kJ/mol, at the row's "
-               "level; includes the cost of reaching s-cis. The GFN2-xTB barrier (secondary column) is far "
-               "too low in value; the regression sets the scale of each level's barriers",
+    "barrier": "transition structure minus the diene's conformers minus the dienophile, kJ/mol, at the "
+               "row's level; includes the cost of reaching s-cis. At the refined level by default a free "
+               "energy: the density-functional energies plus GFN2-xTB thermal corrections (quasi-RRHO, 1 M, "
+               "the run's temperature; the diene as the Boltzmann ensemble of its priced conformers). The "
+               "GFN2-xTB barrier (secondary column) is electronic and far too low in value; the regression "
+               "sets the scale of each level's barriers",
     "s-cis penalty": "E(planar s-cis) − E(lowest conformer), GFN2-xTB, kJ/mol; 0 for ring-locked s-cis dienes",
     "HOMO / LUMO": "GFN2-xTB orbital energies of the diene unit (eV): model features, not ionisation energies",
     "regio (orbitals)": "frontier-orbital rule: the larger diene terminus coefficient bonds the larger "
@@ -551,9 +554,11 @@ def _level_line(table: pd.DataFrame, model: dict) -> str:
     if level == FAST_LEVEL:
         return level_text(model)
     n_fast = int((ranked["level"] == FAST_LEVEL).sum())
-    return (f"{level} single points on GFN2-xTB structures for {len(ranked) - n_fast} of {len(ranked)} ranked "
-            f"rows" + (f"; {n_fast} ranked at GFN2-xTB (their refinement failed; see their message)"
-                       if n_fast else ""))
+    kind = (" (free-energy barriers: GFN2-xTB thermal corrections, conformer ensemble)"
+            if model.get("barrier_kind") == "free_energy" else " (electronic barriers)")
+    return (f"{level} single points on GFN2-xTB structures{kind} for {len(ranked) - n_fast} of {len(ranked)} "
+            f"ranked rows" + (f"; {n_fast} ranked at GFN2-xTB (their refinement failed; see their message)"
+                              if n_fast else ""))
 
 
 def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.DataFrame,

@@ -342,12 +342,20 @@ def shortlist(config: dict, manifest_path, out_path, results="results") -> dict:
     return out
 
 
+def thermal_source(config: dict):
+    """Where the pricing's thermal corrections come from: GFN2-xTB with the run's settings."""
+    from .pipeline import backend_settings
+    from .refine import Thermal
+    return Thermal(backend_settings(cfg.structure_settings(config)), float(config["temperature_K"]))
+
+
 def refine_dienophile(config: dict, dienophile_file, out_path, threads: int = 1) -> dict:
     """A dienophile priced at the refined level (once per dienophile and level)."""
     from .refine import level_from_config, price_dienophile
     write_json, read_json = _json()
     config = cfg.validate(config)
-    r = price_dienophile(read_json(dienophile_file), level_from_config(config["refine"], threads))
+    r = price_dienophile(read_json(dienophile_file), level_from_config(config["refine"], threads),
+                         thermal_source(config))
     write_json(r, out_path)
     return r
 
@@ -366,10 +374,11 @@ def refine_pair(config: dict, manifest: dict, stem: str, level, results="results
         try:
             priced = read_json(spath)
         except (FileNotFoundError, ValueError):
-            priced = price_structure(read_json(structure_path(results, task["key"])), level)
+            priced = price_structure(read_json(structure_path(results, task["key"])), level,
+                                     thermal_source(config))
             write_json(priced, spath)
     dph = read_json(refined_dienophile_path(results, task["dhash"], rhash))
-    r = price_pair(priced, transition, dph, level) | {"stem": stem}
+    r = price_pair(priced, transition, dph, level, thermal_source(config)) | {"stem": stem}
     write_json(r, refined_path(results, stem, rhash))
     return r
 
@@ -454,6 +463,7 @@ def rank_tables(manifest: dict, computed, config: dict):
     fitted on the refined reference barriers and ranks every site it can price. The
     summary is the ranking model's, with the GFN2-xTB one under 'fast' beside it."""
     from . import ranking
+    computed.barrier = config["refine"]["barrier"]
     fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], computed, config,
                                                     config["dienophile"])
     sites = ranking.site_table(manifest["records"], computed)
@@ -473,7 +483,7 @@ def rank_tables(manifest: dict, computed, config: dict):
             if len(sites):
                 sites = ranking.predict_sites(sites, rfit, config, rsummary, "refined")
             refined_label = rsummary["level"]
-            summary = rsummary | {"fast": summary}
+            summary = rsummary | {"fast": summary, "barrier_kind": config["refine"]["barrier"]}
     if len(sites):
         sites = ranking.choose_level(sites, refined_label)
     summary |= {"ranking_level": refined_label or ranking.FAST_LEVEL, "refine_rows": config["refine"]["rows"]}

@@ -328,7 +328,7 @@ def refined_pair_barrier(smiles: str, dienophile: str, level_key: tuple) -> floa
     dph = compute_dienophile(dienophile, st)
     ts = transition_states_for_structure(res, dph, backend_settings(st), cfg.load(CONFIG_PATH)["transition_state"])
     out = price_pair(price_structure(res, level), ts, price_dienophile(dph, level), level)
-    ok = [s["barrier_refined_kJmol"] for s in out["sites"].values() if s["status"] == "ok"]
+    ok = [s["electronic_barrier_kJmol"] for s in out["sites"].values() if s["status"] == "ok"]
     if out["status"] != "ok" or not ok:
         raise RuntimeError(f"{smiles}: refinement {out['status']}: {out['message']}")
     return float(min(ok))

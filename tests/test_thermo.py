@@ -71,3 +71,51 @@ def test_quasi_rrho_caps_the_entropy_of_a_very_soft_mode():
     stiff_h = thermo.thermal_correction([1000.0], masses, pos, 298.15, cutoff_cm1=0.0)
     stiff_q = thermo.thermal_correction([1000.0], masses, pos, 298.15)
     assert stiff_q.free_energy_kJmol == pytest.approx(stiff_h.free_energy_kJmol, abs=1e-3)
+
+
+def test_two_equal_conformers_lower_the_free_energy_by_RT_ln_2():
+    # a diene with two mirror-image gauche minima has twice the partition function of one:
+    # G = G_i - RT ln 2 = G_i - 1.718 kJ/mol at 298.15 K (statistical mechanics, common practice)
+    from dienes.refine import ensemble_free_energy_kJmol
+    assert ensemble_free_energy_kJmol([10.0, 10.0], 298.15) == pytest.approx(10.0 - 1.7185, abs=1e-3)
+    # a conformer 30 kJ/mol up adds almost nothing (exp(-12) of the weight)
+    assert ensemble_free_energy_kJmol([10.0, 40.0], 298.15) == pytest.approx(10.0, abs=1e-3)
+
+
+@pytest.mark.slow
+def test_activation_entropy_of_butadiene_plus_acrolein_matches_the_gas_phase_a_factor(structure_settings, config):
+    # measured: A = 1.46e6 L/mol/s and Ea = 82.4 kJ/mol over 428-605 K (Kistiakowsky & Lacher,
+    # J. Am. Chem. Soc. 1936, 58, 123; read from the NIST Chemical Kinetics Database): at the middle
+    # of the range dS = R ln(A h / (e^2 kB T)) = -148 J/(mol K) in the 1 mol/L standard state.
+    # Computed from GFN2-xTB wavenumbers at the located transition structure and both minima
+    # (quasi-RRHO). Tolerance 20 J/(mol K): the measured A sums endo and exo channels (R ln 2 =
+    # 6 J/(mol K)) and the soft intermolecular modes of the complex carry the largest error of the
+    # quasi-RRHO treatment; a lost rotation or translation would be off by 100 or more.
+    from pathlib import Path
+
+    from ase.data import atomic_masses
+    from dienes.kinetics import read_measurements
+    from dienes.optimize import backend_energy_forces
+    from dienes.pipeline import backend_settings, compute_dienophile, compute_structure
+    from dienes.saddle import analyse_vibrations
+    from dienes.backends import Molecule
+    from dienes.transition import transition_states_for_structure
+    m = next(x for x in read_measurements(Path(__file__).parent / "data" / "gas_phase_kinetics.csv")
+             if x.record_ids == ["G01"])
+    measured = 1e3 * (m.dh_kJmol - m.dg_kJmol) / m.temperature_K
+    assert measured == pytest.approx(-148.0, abs=1.0)
+    bs = backend_settings(structure_settings)
+    diene = compute_structure("C=CC=C", structure_settings)
+    dph = compute_dienophile("C=CC=O", structure_settings)
+    ts = transition_states_for_structure(diene, dph, bs, config["transition_state"])
+    site = min((s for s in ts["sites"].values() if s["status"] == "ok"), key=lambda s: s["barrier_kJmol"])
+
+    def entropy(numbers, positions):
+        vib = analyse_vibrations(numbers, positions, backend_energy_forces(Molecule(numbers, bs)))
+        masses = [atomic_masses[int(z)] for z in numbers]
+        return thermo.thermal_correction(vib.frequencies_cm1, masses, positions, m.temperature_K).entropy_J_molK
+
+    computed = (entropy(ts["numbers"], site["positions_A"])
+                - entropy(diene["geometry"]["numbers"], diene["geometry"]["minimum_A"])
+                - entropy(dph["geometry"]["numbers"], dph["geometry"]["minimum_A"]))
+    assert computed == pytest.approx(measured, abs=20.0)

@@ -223,15 +223,51 @@ def reference_figures(names, x, y, T_ref) -> dict:
             "residuals": {n: float(a - b) for n, a, b in zip(names, y, y_cv)}}
 
 
+def markdown(reports: dict) -> str:
+    """The level comparison as the tables of docs/validation.md, from --json outputs."""
+    lines = ["| level | barrier | LOO RMSE | LOO Spearman | pairwise | nested LOO RMSE | slope / TST | known orders right |",
+             "|---|---|---|---|---|---|---|---|"]
+    for text, out in reports.items():
+        for var, f in out["variants"].items():
+            wrong = [k.replace(" faster than ", " > ") for k, v in f["orders"].items() if not v]
+            lines.append(f"| {text} | {var} | {f['cv_rmse_log10k']:.2f} | {f['cv_spearman']:.2f} | "
+                         f"{f['cv_pairwise_accuracy']:.2f} | {f['nested_rmse']:.2f} | {f['ols_slope_over_tst']:.2f} | "
+                         f"{f['n_orders_right']}/{f['n_orders']}" + (f" (wrong: {'; '.join(wrong)})" if wrong else "")
+                         + " |")
+    gas = [(t, o["gas_phase"]) for t, o in reports.items() if "gas_phase" in o]
+    if gas:
+        lines += ["", "| level | computed vs measured | MSE | MAE | Spearman | pairs >= 8 kJ/mol apart in order |",
+                  "|---|---|---|---|---|---|"]
+        for text, g in gas:
+            for k, v in g.items():
+                if k != "rows":
+                    lines.append(f"| {text} | {k} | {v['MSE']:+.1f} | {v['MAE']:.1f} | {v['spearman']:.2f} | "
+                                 f"{v['pairs_right']}/{v['pairs']} |")
+        lines += ["", "| reaction | records | T (K) | dH exp | dG exp | " + " | ".join(
+            f"E, dH, dG ({t})" for t, _ in gas) + " |", "|---|---|---|---|---|" + "---|" * len(gas)]
+        for k, row in enumerate(gas[0][1]["rows"]):
+            cells = [f"{g['rows'][k]['E']:.1f}, {g['rows'][k]['dH']:.1f}, {g['rows'][k]['dG']:.1f}" for _, g in gas]
+            lines.append(f"| {row['reaction']}{' (weak)' if row['weak'] else ''} | {', '.join(row['records'])} | "
+                         f"{row['T']:.0f} | {row['dH_exp']:.1f} | {row['dG_exp']:.1f} | " + " | ".join(cells) + " |")
+    return "\n".join(lines)
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--results", default="results", help="results/ of a finished demo run (default: results)")
-    ap.add_argument("--level", action="append", required=True, help="method/basis[/grid=N][/conv=1e-8]")
+    ap.add_argument("--level", action="append", default=[], help="method/basis[/grid=N][/conv=1e-8]")
+    ap.add_argument("--markdown", nargs="+", metavar="JSON", help="print the tables of earlier --json files and stop")
     ap.add_argument("--reference-only", action="store_true", help="only the reference dienes (no extra orders)")
     ap.add_argument("--threads", type=int, default=1)
     ap.add_argument("--gas-phase", action="store_true", help="also the measured gas-phase kinetics")
     ap.add_argument("--json", help="write every figure to this file")
     args = ap.parse_args()
+    if args.markdown:
+        reports = {}
+        for path in args.markdown:
+            reports |= json.loads(Path(path).read_text())
+        print(markdown(reports))
+        return
     results = Path(args.results)
     config = cfg.load(CONFIG)
     st = cfg.structure_settings(config)

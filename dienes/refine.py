@@ -14,8 +14,10 @@ Only the single points the ranking needs are computed:
 - the diene's lowest GFN2-xTB minima (up to LOW_MINIMA_KEPT within 10 kJ/mol
   of the global one: the better level may order them differently, and a
   barrier measured from the wrong minimum is wrong by that difference); the
-  priced minimum is the lowest of them. One result per structure and level,
-  shared by every dienophile.
+  priced minimum is the lowest of them. A minimum that is the mirror image of
+  one already priced (a gauche pair: same interatomic distances) takes its
+  twin's energy instead of a single point of its own. One result per
+  structure and level, shared by every dienophile.
 - the dienophile's minimum, once per run (one result per dienophile and level);
 - the transition structure of every reactive site whose GFN2-xTB barrier lies
   within SITE_WINDOW_KJMOL of the site's best (the better level may prefer
@@ -51,6 +53,8 @@ from .backends import DFTLevel, DFTSettings, Settings as BackendSettings, d3_dis
 from .units import rt_kjmol
 
 SITE_WINDOW_KJMOL = 15.0          # sites priced: GFN2-xTB barrier within this of the site's best
+MIRROR_TOLERANCE_A = 0.04         # minima whose sorted interatomic distances agree this well ...
+MIRROR_ENERGY_KJMOL = 0.1         # ... and whose GFN2-xTB energies this well are mirror images
 PRICED_SITE_STATUSES = ("ok", "ts_unverified")
 
 
@@ -79,17 +83,19 @@ class Thermal:
     temperature_K: float
 
 
-def thermal_correction_kJmol(numbers, positions_A, thermal: Thermal) -> float:
-    """G - E (kJ/mol) of one structure: GFN2-xTB finite-difference Hessian, harmonic
-    wavenumbers, quasi-RRHO, 1 mol/L standard state (dienes.thermo)."""
+def thermal_correction_kJmol(numbers, positions_A, thermal: Thermal, frequencies_cm1=None) -> float:
+    """G - E (kJ/mol) of one structure: harmonic wavenumbers (given, or from a GFN2-xTB
+    finite-difference Hessian), quasi-RRHO, 1 mol/L standard state (dienes.thermo)."""
     from ase.data import atomic_masses
-    from .backends import Molecule
-    from .optimize import backend_energy_forces
-    from .saddle import analyse_vibrations
     from .thermo import thermal_correction
-    vib = analyse_vibrations(numbers, positions_A, backend_energy_forces(Molecule(numbers, thermal.backend)))
+    if not frequencies_cm1:
+        from .backends import Molecule
+        from .optimize import backend_energy_forces
+        from .saddle import analyse_vibrations
+        frequencies_cm1 = analyse_vibrations(numbers, positions_A, backend_energy_forces(
+            Molecule(numbers, thermal.backend))).frequencies_cm1
     masses = [atomic_masses[int(z)] for z in numbers]
-    return thermal_correction(vib.frequencies_cm1, masses, positions_A, thermal.temperature_K).free_energy_kJmol
+    return thermal_correction(frequencies_cm1, masses, positions_A, thermal.temperature_K).free_energy_kJmol
 
 
 def ensemble_free_energy_kJmol(free_energies_kJmol, temperature_K: float) -> float:
@@ -133,6 +139,24 @@ def price_dienophile(dienophile: dict, level, thermal: Thermal | None = None) ->
     return out | {"wall_time_s": round(time.perf_counter() - t0, 2)}
 
 
+def mirror_twins(geometries, energies_kJmol=None) -> list[int]:
+    """For each geometry, the index of the first earlier one it is the mirror image of (or
+    itself). A reflection keeps every interatomic distance, and so does relabelling the
+    hydrogens of a methyl group: the sorted distances of two mirror-image conformers agree,
+    those of two different conformers do not. With `energies_kJmol` (GFN2-xTB), twins must
+    also agree in energy within MIRROR_ENERGY_KJMOL."""
+    import numpy as np
+    n = len(np.asarray(geometries[0]))
+    iu = np.triu_indices(n, 1)
+    dist = [np.sort(np.linalg.norm(np.asarray(g)[:, None] - np.asarray(g)[None], axis=-1)[iu]) for g in geometries]
+    e = list(energies_kJmol) if energies_kJmol is not None else [0.0] * len(geometries)
+    out = []
+    for k, d in enumerate(dist):
+        out.append(next((j for j in range(k) if out[j] == j and abs(e[j] - e[k]) < MIRROR_ENERGY_KJMOL
+                         and np.max(np.abs(dist[j] - d)) < MIRROR_TOLERANCE_A), k))
+    return out
+
+
 def price_structure(structure: dict, level, thermal: Thermal | None = None) -> dict:
     """Energies (kJ/mol) of a diene's lowest GFN2-xTB minima at `level`; the priced
     minimum is the lowest of them. With `thermal`, each minimum's thermal correction too."""
@@ -142,18 +166,26 @@ def price_structure(structure: dict, level, thermal: Thermal | None = None) -> d
     if structure.get("status") != "ok":
         return out | {"status": "not_refined", "message": "no GFN2-xTB structure to price"}
     geo = structure["geometry"]
+    geometries = geo.get("low_minima_A") or [geo["minimum_A"]]
+    twins = mirror_twins(geometries, structure.get("minima_rel_kJmol", [])[:len(geometries)] or None)
     try:
-        minima = [_energy(level, geo["numbers"], pos, f"diene minimum {k + 1}", log)
-                  for k, pos in enumerate(geo.get("low_minima_A") or [geo["minimum_A"]])]
+        minima = []
+        for k, pos in enumerate(geometries):
+            minima.append(minima[twins[k]] if twins[k] != k
+                          else _energy(level, geo["numbers"], pos, f"diene minimum {k + 1}", log))
     except SCFFailure as exc:
         return out | {"status": "scf_failed", "message": str(exc),
                       "wall_time_s": round(time.perf_counter() - t0, 2)}
     best = min(range(len(minima)), key=minima.__getitem__)
     out |= {"minima_kJmol": [round(e, 4) for e in minima], "energy_min_kJmol": round(minima[best], 4),
             "minimum_index": best}
+    out["mirror_of"] = twins
     if thermal is not None:
-        out["g_corr_kJmol"] = [round(thermal_correction_kJmol(geo["numbers"], pos, thermal), 4)
-                               for pos in geo.get("low_minima_A") or [geo["minimum_A"]]]
+        g_corr = []
+        for k, pos in enumerate(geometries):
+            g_corr.append(g_corr[twins[k]] if twins[k] != k
+                          else round(thermal_correction_kJmol(geo["numbers"], pos, thermal), 4))
+        out["g_corr_kJmol"] = g_corr
         out["temperature_K"] = thermal.temperature_K
         out["free_energy_kJmol"] = round(ensemble_free_energy_kJmol(
             [e + g for e, g in zip(minima, out["g_corr_kJmol"])], thermal.temperature_K), 4)
@@ -209,7 +241,9 @@ def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict
                                "ts_status": site["status"],
                                "contact_dispersion_kJmol": round(contact_dispersion(transition, label), 3)}
         if thermal is not None and "free_energy_kJmol" in structure_priced and "g_corr_kJmol" in dienophile_priced:
-            g_ts = thermal_correction_kJmol(transition["numbers"], site["positions_A"], thermal)
+            # a verified saddle carries the wavenumbers of its own check; a model structure has none
+            g_ts = thermal_correction_kJmol(transition["numbers"], site["positions_A"], thermal,
+                                            site.get("frequencies_cm1"))
             g_dph = dienophile_priced["energy_kJmol"] + dienophile_priced["g_corr_kJmol"]
             out["sites"][label] |= {"g_corr_ts_kJmol": round(g_ts, 3), "free_energy_barrier_kJmol": round(
                 e_ts + g_ts - structure_priced["free_energy_kJmol"] - g_dph, 3)}

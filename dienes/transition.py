@@ -154,6 +154,7 @@ class Verification:
     adduct: object = None        # OptResult of the product-side minimisation
     reactant_side: object = None  # OptResult of the reactant-side minimisation
     n_gradients: int = 0
+    frequencies_cm1: tuple = ()   # the harmonic wavenumbers at the saddle (imaginary ones negative)
 
 
 def verify(numbers, ts_A, pairs, energy_forces) -> Verification:
@@ -162,7 +163,8 @@ def verify(numbers, ts_A, pairs, energy_forces) -> Verification:
     n_grad = vib.n_gradients
     imag = vib.imaginary(SPURIOUS_CM1)
     lowest = float(vib.frequencies_cm1[0])
-    base = dict(imaginary_cm1=round(lowest, 1), n_imaginary=int(len(imag)))
+    base = dict(imaginary_cm1=round(lowest, 1), n_imaginary=int(len(imag)),
+                frequencies_cm1=tuple(round(float(f), 2) for f in vib.frequencies_cm1))
     if lowest > -IMAGINARY_MIN_CM1:
         return Verification(False, f"no imaginary mode beyond {IMAGINARY_MIN_CM1:.0f}i cm-1 "
                                    f"(lowest {lowest:.0f} cm-1)", n_gradients=n_grad, **base)
@@ -292,6 +294,7 @@ def locate_site(screened: Screened, complex_numbers, n_diene_atoms: int, energie
         "complex_kJmol": round(check.reactant_side.energy_eV * EV_KJMOL - e_ref, 3),
         "model_barrier_kJmol": round(cand["model_kJmol"] - e_ref, 3),
         "ts_imag_cm1": check.imaginary_cm1, "n_imaginary": check.n_imaginary,
+        "frequencies_cm1": list(check.frequencies_cm1),
         "mode_bond_changes": list(check.bond_changes),
         "forming_bonds_A": [round(d1, 3), round(d2, 3)], "asynchronicity_A": round(abs(d1 - d2), 3),
         "pairs": [list(p) for p in cand["approach"].pairs],

@@ -86,6 +86,9 @@ def test_pricing_at_gfn2_reproduces_the_located_barrier(butadiene_ethylene, stru
     # dS about -150 J/(mol K), so -T dS about +45 kJ/mol at 298 K, plus a few kJ/mol of zero-point
     # and thermal enthalpy; a lost partner or a sign error moves it far outside 35-65 kJ/mol
     assert 35.0 < out["sites"][site]["free_energy_barrier_kJmol"] - out["sites"][site]["electronic_barrier_kJmol"] < 65.0
+    # the wavenumbers the saddle check stored are the saddle's own: a fresh Hessian agrees
+    fresh = refine.thermal_correction_kJmol(ts["numbers"], ts["sites"][site]["positions_A"], thermal)
+    assert out["sites"][site]["g_corr_ts_kJmol"] == pytest.approx(fresh, abs=0.05)
 
 
 @pytest.mark.slow
@@ -128,3 +131,16 @@ def test_an_scf_that_fails_gives_a_status_naming_the_structure(butadiene_ethylen
     out = refine.price_pair(priced, ts, dref, level)
     assert out["status"] == "scf_failed" and out["message"].startswith("diene:")
     assert not out["sites"]
+
+
+def test_a_mirror_image_minimum_is_recognised_and_a_different_one_is_not():
+    # a reflection keeps every interatomic distance, and so does swapping two atoms of one kind
+    # (the hydrogens of a methyl group); moving an atom does not (geometry)
+    rng = np.random.default_rng(1)
+    a = rng.normal(size=(8, 3))
+    mirror = (a * np.array([-1.0, 1.0, 1.0]))[[0, 1, 2, 3, 4, 5, 7, 6]]
+    other = a.copy()
+    other[7] += [0.0, 0.5, 0.0]
+    assert refine.mirror_twins([a, mirror, other]) == [0, 0, 2]
+    # twins in geometry but not in energy stay apart
+    assert refine.mirror_twins([a, mirror], [0.0, 1.0]) == [0, 1]

@@ -39,6 +39,9 @@ def test_report_is_self_contained_and_escaped(run_dir):
     assert html.count("data-row=") == len(LIBRARY)     # a row per input record
     for status in ("invalid_smiles", "locked_s_trans"):
         assert status in html
+    # the level every rank rests on is named at the top and the two levels are compared
+    assert "<b>Level</b> B3LYP/STO-3G single points on GFN2-xTB structures" in html
+    assert "Where the two levels disagree" in html
 
 
 def test_sdf_read_by_rdkit_and_open_babel(run_dir):

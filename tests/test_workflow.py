@@ -137,13 +137,14 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     assert jobs_run(run) == Counter(prepare=1, rank=1, report=1)
     assert json.loads((tmp_path / "results" / "model.json").read_text())["n_reference"] == 4
 
-    # another refined level: every pair is priced again, no GFN2-xTB work
-    run = _snakemake(tmp_path, "--config", "refine={basis: 3-21g}")
+    # another refined level (Hartree-Fock: no grid, the cheapest): every pair is priced again,
+    # no GFN2-xTB work
+    run = _snakemake(tmp_path, "--config", "refine={method: hf}")
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
     assert "compute_structures" not in jobs and "compute_transitions" not in jobs
     assert jobs["refine_dienophile"] == 1 and jobs["refine_pairs"] == 7     # 3 library + 4 reference pairs, one job each
-    assert {r["level"] for r in _ranking(tmp_path) if r["rank"]} == {"B3LYP/3-21G"}
+    assert {r["level"] for r in _ranking(tmp_path) if r["rank"]} == {"HF/STO-3G"}
 
     # another dienophile: its own minimum, the library's transition structures and their pricing;
     # conformers, the dienes' priced minima and the reference set (its own dienophile) are reused

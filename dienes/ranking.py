@@ -320,7 +320,7 @@ def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict, tag
     return out
 
 
-def choose_level(sites: pd.DataFrame, refined_label: str | None) -> pd.DataFrame:
+def choose_level(sites: pd.DataFrame, refined_label: str | None, unpriced_note: str = "") -> pd.DataFrame:
     """One level per site: the refined model's prediction where the site has one, else the
     GFN2-xTB model's, named in `level` and, where the refinement was asked for and failed,
     in `level_note`. The chosen values go to log10_k_pred, log10_k_low, ..., in_domain."""
@@ -338,6 +338,8 @@ def choose_level(sites: pd.DataFrame, refined_label: str | None) -> pd.DataFrame
         out.loc[fell_back, "level_note"] = [
             f"ranked at GFN2-xTB: the {refined_label} pricing did not give a value ({st}: {msg})"
             for st, msg in zip(out.loc[fell_back, "refine_status"], out.loc[fell_back, "refine_message"])]
+        if unpriced_note:
+            out.loc[~refined & out["log10_k_xtb"].notna() & (asked == ""), "level_note"] = unpriced_note
     return out
 
 

@@ -485,7 +485,9 @@ def rank_tables(manifest: dict, computed, config: dict):
             refined_label = rsummary["level"]
             summary = rsummary | {"fast": summary, "barrier_kind": config["refine"]["barrier"]}
     if len(sites):
-        sites = ranking.choose_level(sites, refined_label)
+        rows = config["refine"]["rows"]
+        sites = ranking.choose_level(sites, refined_label, "" if rows in ("all", "none") else (
+            f"ranked at GFN2-xTB: not among the {rows} best GFN2-xTB rows that refine.rows prices"))
     summary |= {"ranking_level": refined_label or ranking.FAST_LEVEL, "refine_rows": config["refine"]["rows"]}
     table = ranking.rank_table(manifest["records"], computed, sites)
     return table, sites, summary, ref_table

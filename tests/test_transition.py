@@ -49,17 +49,34 @@ def located(structure_settings, config):
 def test_butadiene_maleic_anhydride_saddle_is_verified(located):
     s = located["bd"]
     assert s["status"] == "ok" and s["ts_verified"]
-    # a transition structure: one imaginary mode, along both forming bonds together (common practice)
-    assert s["n_imaginary"] == 1 and s["ts_imag_cm1"] < -100
-    assert np.sign(s["mode_bond_changes"][0]) == np.sign(s["mode_bond_changes"][1])
+    # the reaction mode of a Diels-Alder transition structure lies at several hundred i cm^-1
+    # (common practice: 400-650i at density-functional levels; GFN2-xTB places these saddles
+    # earlier and flatter, 180-390i over the demo's 46); a methyl-rotor or ring-flip saddle
+    # sits below 150i, a broken Hessian far above 900i
+    assert -900 < s["ts_imag_cm1"] < -150
     # a concerted, nearly synchronous TS for a symmetric pair: forming bonds 2.0-2.6 A, alike
     assert all(2.0 < d < 2.6 for d in s["forming_bonds_A"]) and s["asynchronicity_A"] < 0.05
-    # the decomposition adds up, and the cycloadduct is downhill (common practice)
-    total = s["distortion_kJmol"] + s["dienophile_distortion_kJmol"] + s["interaction_kJmol"]
-    assert total == pytest.approx(s["barrier_kJmol"], abs=0.01)
+    # the cycloadduct is far downhill (common practice)
     assert s["reaction_energy_kJmol"] < s["barrier_kJmol"] - 100
     # maleic anhydride prefers endo (Alder's rule; common practice)
-    assert s["face_preference"] == "endo" and s["face_gap_kJmol"] > 0
+    assert s["face_preference"] == "endo"
+
+
+@pytest.mark.slow
+def test_decomposition_against_separate_single_points(located, structure_settings):
+    # the two partners cut out of the complex and priced on their own, against their own minima:
+    # catches a swapped or shifted atom range between diene and dienophile
+    from dienes.backends import Molecule
+    from dienes.pipeline import backend_settings, compute_dienophile, compute_structure
+    s = located["bd"]
+    res = compute_structure("C=CC=C", structure_settings)
+    dph = compute_dienophile("O=C1OC(=O)C=C1", structure_settings)
+    pos, nd = np.asarray(s["positions_A"]), s["n_diene_atoms"]
+    bs = backend_settings(structure_settings)
+    e_diene = Molecule(res["geometry"]["numbers"], bs).singlepoint(pos[:nd]).energy_kJmol
+    e_dph = Molecule(dph["geometry"]["numbers"], bs).singlepoint(pos[nd:]).energy_kJmol
+    assert e_diene - res["energy_min_kJmol"] == pytest.approx(s["distortion_kJmol"], abs=0.05)
+    assert e_dph - dph["energy_min_kJmol"] == pytest.approx(s["dienophile_distortion_kJmol"], abs=0.05)
 
 
 @pytest.mark.slow

@@ -172,6 +172,19 @@ def test_the_quick_screen_is_labelled_as_the_fast_level(tmp_path):
     assert json.loads((tmp_path / "results" / "model.json").read_text())["ranking_level"] == "GFN2-xTB"
     assert "GFN2-xTB level only" in (tmp_path / "results" / "report.html").read_text()
 
+    # refine.rows: 1 prices the best GFN2-xTB row and the reference set, nothing else; the
+    # other row stays at GFN2-xTB and says why
+    run = _snakemake(tmp_path, "--config", "refine={rows: 1}")
+    assert run.returncode == 0, run.stderr[-3000:]
+    jobs = jobs_run(run)
+    assert jobs["shortlist"] == 1 and jobs["refine_pairs"] == 1 + len(REFERENCE_IDS)
+    assert "compute_structures" not in jobs and "compute_transitions" not in jobs
+    rows = {r["id"]: r for r in _ranking(tmp_path)}
+    best_xtb = min(rows.values(), key=lambda r: int(r["rank_xtb"]))
+    other = next(r for r in rows.values() if r is not best_xtb)
+    assert best_xtb["level"] == "B3LYP/STO-3G" and other["level"] == "GFN2-xTB"
+    assert "not among the 1 best GFN2-xTB rows" in other["message"]
+
 
 def test_unreadable_library_stops_before_computing(tmp_path):
     _setup(tmp_path, [("T-1", "C=CC=C", "a")])

@@ -76,6 +76,9 @@ def _rank(args) -> int:
     workdir.mkdir(parents=True, exist_ok=True)
     local_config = workdir / "config" / "config.yaml"
     configfile = local_config if local_config.is_file() else REPO / "config" / "config.yaml"
+    if local_config.is_file():
+        print(f"dienes: using {local_config} (the working directory's own config) instead of the shipped "
+              "config/config.yaml", file=sys.stderr)
     overrides = [f"library={library}"]
     if not local_config.is_file():
         overrides.append(f"reference={REPO / 'config' / 'reference_rates.csv'}")
@@ -200,7 +203,7 @@ def main(argv=None) -> int:
                        help="rank a library with the workflow (CSV id,smiles; .smi; .sdf)",
                        description="Rank a diene library with the Snakemake workflow and print the top.")
     r.add_argument("library", help="the diene library file")
-    r.add_argument("--dienophile", help="dienophile SMILES (C=C or C#C; default: the config's, maleic anhydride)")
+    r.add_argument("--dienophile", metavar="SMILES", help="dienophile SMILES (C=C or C#C; default: the config's, maleic anhydride)")
     cores = os.cpu_count() or 1
     r.add_argument("--cores", type=int, default=cores, help=f"CPU cores to use (default: all, {cores} here)")
     r.add_argument("--refine", type=_refine_rows, metavar="all|none|N",
@@ -219,7 +222,7 @@ def main(argv=None) -> int:
                         description="Sites, s-cis penalty, frontier orbitals, transition structure and "
                                     "torsion profile of one diene, computed on the spot.")
     lk.add_argument("smiles", help="the diene SMILES")
-    lk.add_argument("--dienophile", help="dienophile SMILES (default: the config's, maleic anhydride)")
+    lk.add_argument("--dienophile", metavar="SMILES", help="dienophile SMILES (default: the config's, maleic anhydride)")
     lk.add_argument("--backend", choices=["xtb-python", "tblite"], help="GFN2-xTB backend (default: the config's)")
     lk.add_argument("--no-ts", action="store_true", help="skip the transition-structure search (default: search)")
     lk.add_argument("--no-profile", action="store_true", help="skip the torsion profile (default: scan)")

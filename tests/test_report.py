@@ -89,6 +89,28 @@ def _chrome():
                             options=opts)
 
 
+def test_report_table_matches_ranking_csv(run_dir):
+    # what the chemist reads in the page is what ranking.csv holds: rank, prediction, level and
+    # refined barrier of every ranked row (a report built from stale or re-sorted data fails)
+    import html as htmllib
+    import re
+    page = (run_dir / "results" / "report.html").read_text()
+    shown = {}
+    for row in re.findall(r"<tr class='[^']*' data-row='\d+'.*?</tr>", page, re.S):
+        cells = re.findall(r"<td[^>]*?(?: data-sort='([^']*)')?>(.*?)</td>", re.sub(r"<svg.*?</svg>", "", row, flags=re.S), re.S)
+        rid = htmllib.unescape(re.sub(r"<div.*", "", cells[2][1], flags=re.S)).strip()
+        shown[rid] = cells
+    table = _ranking(run_dir)
+    ranked = [r for r in table if r["rank"]]
+    assert ranked and len(shown) == len(table)
+    for r in ranked:
+        cells = shown[r["id"]]
+        assert int(float(cells[0][0])) == int(float(r["rank"])), r["id"]
+        assert float(cells[5][0]) == pytest.approx(float(r["log10_k_pred"]), abs=1e-3), r["id"]
+        assert cells[6][1] == r["level"], r["id"]
+        assert float(cells[7][1]) == pytest.approx(float(r["barrier_refined_kJmol"]), abs=0.06), r["id"]
+
+
 def test_report_in_a_real_browser(run_dir):
     if not (shutil.which("chromium") and shutil.which("chromedriver")):
         if os.environ.get("CI"):

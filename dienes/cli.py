@@ -76,11 +76,11 @@ def _rank(args) -> int:
     workdir.mkdir(parents=True, exist_ok=True)
     local_config = workdir / "config" / "config.yaml"
     configfile = local_config if local_config.is_file() else REPO / "config" / "config.yaml"
+    overrides = [f"library={library}"]
     if local_config.is_file():
         print(f"dienes: using {local_config} (the working directory's own config) instead of the shipped "
               "config/config.yaml", file=sys.stderr)
-    overrides = [f"library={library}"]
-    if not local_config.is_file():
+    else:
         overrides.append(f"reference={REPO / 'config' / 'reference_rates.csv'}")
     if args.dienophile:
         overrides.append(f"dienophile={args.dienophile}")

@@ -53,6 +53,37 @@ def test_unreadable_files_name_the_file_and_the_problem(name, pattern):
         read_library(DATA / name)
 
 
+@pytest.mark.parametrize("name,content,pattern", [
+    ("zero.csv", "", "zero.csv: the file is empty"),
+    ("header_only.csv", "id,smiles\n", "header_only.csv: the file holds no rows"),
+    ("empty.smi", "\n\n", "empty.smi: the file holds no rows"),
+    ("empty.sdf", "", "empty.sdf: the file"),
+])
+def test_empty_files_are_refused_with_their_name(tmp_path, name, content, pattern):
+    # an empty library is a mistake to report, not a run with nothing in it (common practice)
+    path = tmp_path / name
+    path.write_text(content)
+    with pytest.raises(LibraryError, match=pattern):
+        read_library(path)
+
+
+def test_a_working_directory_config_is_announced(tmp_path, monkeypatch, capsys):
+    # a config/config.yaml in the working directory silently replacing the shipped one would change
+    # every number without a word: the console names the file it uses
+    import subprocess
+    from dienes import cli
+    (tmp_path / "config").mkdir()
+    (tmp_path / "config" / "config.yaml").write_text((Path(REPO) / "config" / "config.yaml").read_text())
+    lib = tmp_path / "lib.csv"
+    lib.write_text("id,smiles\nA,C=CC=C\n")
+    seen = {}
+    monkeypatch.setattr(cli.subprocess, "run", lambda cmd, env: seen.setdefault("cmd", cmd) and subprocess.CompletedProcess(cmd, 0))
+    cli.main(["rank", str(lib), "--workdir", str(tmp_path), "--quiet"])
+    err = capsys.readouterr().err
+    assert f"using {tmp_path / 'config' / 'config.yaml'}" in err
+    assert str(tmp_path / "config" / "config.yaml") in seen["cmd"]
+
+
 SMILES_ALPHABET = "CcNnOoSsFlBrI()[]=#@+-/\\.%0123456789Hh "
 
 

@@ -18,7 +18,7 @@ from .paths import workflow_root
 # files then stop matching and are recomputed.
 SCIENCE_VERSION = 4
 # Bump when a change in the pricing at the refined level changes its numbers.
-REFINE_VERSION = 3
+REFINE_VERSION = 4
 
 SCHEMA_PATH = workflow_root() / "config" / "schema.yaml"
 

@@ -144,3 +144,30 @@ def test_a_mirror_image_minimum_is_recognised_and_a_different_one_is_not():
     assert refine.mirror_twins([a, mirror, other]) == [0, 0, 2]
     # twins in geometry but not in energy stay apart
     assert refine.mirror_twins([a, mirror], [0.0, 1.0]) == [0, 1]
+
+
+def test_only_minima_within_the_window_are_priced():
+    # GFN2-xTB puts butadiene-like gauche conformers 8-10 kJ/mol up and B3LYP/def2-SVP 14-18 (demo,
+    # docs/validation.md): minima above MINIMA_WINDOW_KJMOL are left out, the rest are priced
+    calls = []
+
+    class Counting:
+        def label(self):
+            return "counting level"
+
+        def as_dict(self):
+            return {}
+
+        def energy(self, numbers, positions_A):
+            calls.append(np.asarray(positions_A).copy())
+            return LevelEnergy(float(np.sum(positions_A)), True)
+
+    rng = np.random.default_rng(3)
+    geometries = [rng.normal(size=(6, 3)) for _ in range(3)]
+    structure = {"status": "ok", "key": "k", "minima_rel_kJmol": [0.0, refine.MINIMA_WINDOW_KJMOL - 1.0,
+                                                                 refine.MINIMA_WINDOW_KJMOL + 1.0, 20.0],
+                 "geometry": {"numbers": [6] * 6, "minimum_A": geometries[0].tolist(),
+                              "low_minima_A": [g.tolist() for g in geometries]}}
+    out = refine.price_structure(structure, Counting())
+    assert out["status"] == "ok" and len(calls) == 2 and len(out["minima_kJmol"]) == 2
+    assert np.allclose(calls[1], geometries[1])

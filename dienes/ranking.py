@@ -182,8 +182,10 @@ def _fit_site(sites: list[dict]) -> dict | None:
 def reference_rows(reference: list[dict], computed: Computed) -> pd.DataFrame:
     """One row per reference record with its fitted site's features (or why not)."""
     rows = []
+    seen: dict[tuple, str] = {}      # (structure key, dienophile) -> id of the row that measured it
     for rec in reference:
         row = {"id": rec["id"], "smiles": rec["smiles"], "used": False, "reason": ""}
+        pair = (tuple(i["key"] for i in rec["isomers"]), canonical(rec["dienophile"]["smiles"]))
         try:
             row["log10_k"] = float(rec["extra"].get("log10_k", "nan"))
         except ValueError:
@@ -195,6 +197,9 @@ def reference_rows(reference: list[dict], computed: Computed) -> pd.DataFrame:
             row["reason"] = f"{rec['status']}: {rec['message']}"
         elif not np.isfinite(row["log10_k"]):
             row["reason"] = "log10_k missing or not a number"
+        elif pair in seen:
+            # the same measurement twice would weigh one pair double in the fit
+            row["reason"] = f"same diene and dienophile as reference row {seen[pair]}: counted once"
         else:
             site = _fit_site(record_sites(rec, computed))
             if site is None:
@@ -204,6 +209,7 @@ def reference_rows(reference: list[dict], computed: Computed) -> pd.DataFrame:
             else:
                 row.update({k: v for k, v in site.items() if k not in ("row", "id")})
                 row["used"] = True
+                seen[pair] = rec["id"]
         rows.append(row)
     return pd.DataFrame(rows)
 

@@ -159,3 +159,30 @@ def test_formula_cells_are_neutralised(tmp_path):
     rows = list(csv.DictReader(open(tmp_path / "t.csv")))
     assert [r["id"] for r in rows] == ["'=1+1", "'+SUM(A1)", "'-2+3", "'@x", "plain"]
     assert rows[0]["log10_k_pred"] == "-1.5"          # numbers stay numbers
+
+
+def test_a_bad_reference_file_gives_each_row_its_reason(tmp_path, monkeypatch):
+    # a chemist's own reference kinetics: a missing rate, a repeated measurement, a bad
+    # dienophile and a duplicated id each reach reference_fit.csv with a reason, none stops the fit
+    # (common practice: one measured pair counts once in a regression)
+    from dienes import ranking, run, settings as cfg
+    ref = tmp_path / "ref.csv"
+    ref.write_text("id,smiles,dienophile_smiles,log10_k\n"
+                   "r1,C=CC=C,O=C1OC(=O)C=C1,0.0\n"
+                   "r2,C=CC(C)=C,O=C1OC(=O)C=C1,\n"
+                   "r3,C=CC=C,O=C1OC(=O)C=C1,0.1\n"
+                   "r4,C1=CCC=C1,C1CC1,3.1\n"
+                   "r1,C=C(C)C(C)=C,O=C1OC(=O)C=C1,0.7\n")
+    lib = tmp_path / "lib.csv"
+    lib.write_text("id,smiles\nx1,C=CC=C\n")
+    config = cfg.load(Path(REPO) / "config" / "config.yaml") | {"library": str(lib), "reference": str(ref)}
+    manifest = run.prepare(config, tmp_path / "manifest.json", results=tmp_path / "results")
+    site = {"site_status": "ok", "ts_verified": True, "barrier_kJmol": 10.0, "site_kind": "acyclic",
+            "aromatic": False}
+    monkeypatch.setattr(ranking, "record_sites", lambda rec, computed: [site])
+    table = ranking.reference_rows(manifest["reference_records"], ranking.Computed(structures={}))
+    assert table["used"].tolist() == [True, False, False, False, True]
+    assert table["reason"].iloc[1] == "log10_k missing or not a number"
+    assert table["reason"].iloc[2] == "same diene and dienophile as reference row r1: counted once"
+    assert table["reason"].iloc[3].startswith("invalid_dienophile: dienophile_smiles:")
+    assert "id also used on row" in manifest["reference_records"][4]["message"]

@@ -1,5 +1,6 @@
-"""The conformer protocol against an exhaustive reference search: the quick mode of
-benchmarks/conformer_protocol.py (slow). Only accuracy is asserted here; the speed
+"""The conformer protocol against a denser reference search: the quick mode of
+benchmarks/conformer_protocol.py (slow), whose reference embeds three times as many
+conformers as the protocol and optimises every one tightly. Only accuracy is asserted here; the speed
 figures it prints are for people, not for a timed test."""
 import os
 import re

@@ -57,6 +57,9 @@ def test_unconverged_optimisation_is_recorded(structure_settings):
     assert "max_steps" in r["message"]
 
 
+# faults are the workflow's, not the level's: these runs stop at GFN2-xTB (the refined stage's
+# own reruns are counted in tests/test_workflow.py)
+FAST = {"rows": "none"}
 LIB = [("K-1", "C=CC=C", ""), ("K-2", "C/C=C/C=C", ""), ("K-3", "C=CC(=C)CCC=C(C)C", ""),
        ("K-4", "C1=CCCC=C1", "")]
 
@@ -72,7 +75,7 @@ def test_kill_9_then_the_same_command_resumes_to_identical_results(tmp_path):
     clean, killed = tmp_path / "clean", tmp_path / "killed"
     for d in (clean, killed):
         d.mkdir()
-        _setup(d, LIB)
+        _setup(d, LIB, refine=FAST)
     assert _snakemake(clean).returncode == 0
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
            "--directory", str(killed), "--cores", "2"]
@@ -84,14 +87,23 @@ def test_kill_9_then_the_same_command_resumes_to_identical_results(tmp_path):
     os.killpg(proc.pid, signal.SIGKILL)
     proc.wait()
     assert not (killed / "results" / "ranking.csv").exists()
+    before = {p: (p.stat().st_mtime_ns, p.read_bytes()) for p in (killed / "results").rglob("*.json")
+              if p.parent.name in ("structures", "transition", "dienophiles")}
+    assert before, "the kill came before any result was written"
     run = _snakemake(killed)
     assert run.returncode == 0, run.stderr[-3000:]
     pd.testing.assert_frame_equal(_numbers(clean), _numbers(killed))
+    # resumed, not recomputed: what was written before the kill is untouched, and the resumed run
+    # computed only the rest
+    assert all(p.stat().st_mtime_ns == t and p.read_bytes() == b for p, (t, b) in before.items())
+    n_all = sum(1 for p in (killed / "results").rglob("*.json")
+                if p.parent.name in ("structures", "transition", "dienophiles"))
+    assert len(before) < n_all
 
 
 @pytest.mark.slow
 def test_truncated_result_is_detected_and_recomputed(tmp_path):
-    _setup(tmp_path, LIB[:2])
+    _setup(tmp_path, LIB[:2], refine=FAST)
     assert _snakemake(tmp_path).returncode == 0
     before = _numbers(tmp_path)
     victim = sorted((tmp_path / "results" / "structures").glob("*.json"))[0]
@@ -111,7 +123,7 @@ def test_truncated_result_is_detected_and_recomputed(tmp_path):
 
 @pytest.mark.slow
 def test_a_second_run_on_the_same_directory_is_refused(tmp_path):
-    _setup(tmp_path, LIB)
+    _setup(tmp_path, LIB, refine=FAST)
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
            "--directory", str(tmp_path), "--cores", "1"]
     first = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,

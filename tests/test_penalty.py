@@ -21,13 +21,16 @@ def site(smiles, settings):
     return r["sites"][0]
 
 
-def test_butadiene_penalty_in_range(backend_settings):
-    # planar s-cis above s-trans: gauche 12 kJ/mol above s-trans (Martin-Drumel et al., ISMS 2019,
-    # rotational spectroscopy) plus 0.4-0.8 kcal/mol for planar over gauche (ab initio): 14-15 kJ/mol.
-    # GFN2-xTB underestimates conformer energies (docs/validation.md: gauche -3 kJ/mol); 6-16 allows
-    # that and catches a planar search that failed (0) or found a broken structure (far above)
+def test_butadiene_penalty_matches_a_torsion_scan(backend_settings):
+    # the pipeline's planar s-cis search against an independent route at the same level: a relaxed
+    # torsion scan (dienes.validation, constrained optimisation at each dihedral), planar s-cis
+    # minus s-trans. How far GFN2-xTB itself lies from the measured 12 kJ/mol gauche gap is a
+    # known error reported in docs/validation.md, not asserted here
+    from dienes import validation
+    angles, energies = validation.butadiene_profile(backend_settings["backend"])[:2]
+    scan = float(energies[0] - energies.min())
     s = site("C=CC=C", backend_settings)
-    assert 6.0 <= s["scis_penalty_kJmol"] <= 16.0
+    assert s["scis_penalty_kJmol"] == pytest.approx(scan, abs=0.3)
     assert abs(s["dihedral_min_deg"]) == pytest.approx(180.0, abs=5.0)  # s-trans global minimum
 
 
@@ -61,9 +64,10 @@ def test_ring_that_lets_the_diene_twist(backend_settings):
 
 
 def test_planar_release_finds_the_gauche_well(backend_settings):
-    # 2-tert-butylbutadiene: the planar s-cis is a flat top between two gauche wells; an
-    # exhaustive search (benchmarks/conformer_protocol.py) puts the gauche 3.0 kJ/mol below it.
-    # A search that stops at the planar top reports 0 here
+    # 2-tert-butylbutadiene: the planar s-cis is a flat top between two gauche wells. Regression
+    # check, no outside value: 3.0 kJ/mol is what this project's dense search
+    # (benchmarks/conformer_protocol.py) gave at GFN2-xTB. A search that stops at the planar top
+    # reports 0 here
     s = site("C=CC(=C)C(C)(C)C", backend_settings)
     assert s["scis_penalty_kJmol"] == pytest.approx(3.0, abs=1.0)
     assert 20.0 < abs(s["dihedral_min_deg"]) < 60.0

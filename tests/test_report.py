@@ -163,6 +163,7 @@ def test_console_rank_prints_the_top(run_dir, tmp_path):
     work = tmp_path / "w"
     work.mkdir()
     shutil.copytree(run_dir / "config", work / "config")
+    shutil.copytree(run_dir / "results", work / "results")   # same structures: computed once, reused
     with open(tmp_path / "mine.csv", "w", newline="") as fh:
         w = csv.writer(fh)
         w.writerow(["id", "smiles"])
@@ -173,7 +174,10 @@ def test_console_rank_prints_the_top(run_dir, tmp_path):
     assert out.returncode == 0, out.stderr[-3000:]
     assert "2 input rows: 2 ok" in out.stdout
     assert "ranking for dienophile" in out.stdout
-    assert "M-2" in out.stdout.split("top")[1]
+    # cyclopentadiene above butadiene (about 1000-fold with maleic anhydride; Sauer & Sustmann 1980,
+    # from memory; common practice): neither is in this run's reference set
+    top = out.stdout.split("top")[1]
+    assert top.index("M-2") < top.index("M-1")
     assert "report.html" in out.stdout
 
 

@@ -11,7 +11,8 @@ from .conftest import BACKENDS
 
 pytestmark = pytest.mark.slow
 
-NAMES = [c.name for c in validation.checks()]
+# a known error of the fast level is reported in docs/validation.md, not asserted
+NAMES = [c.name for c in validation.checks() if c.kind != "known"]
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
@@ -61,6 +62,13 @@ def test_regenerating_keeps_the_hand_written_sections():
     # a document without a block keeps its text after the new block
     fresh = validation.replace_generated(validation.TITLE + "notes\n", "table")
     assert fresh.index("table") < fresh.index("notes")
+
+
+def test_known_errors_are_few_and_say_so():
+    # most checks must be able to fail: a known error is the exception, and says it is one
+    known = [c for c in validation.checks() if c.kind == "known"]
+    assert len(known) <= len(validation.checks()) // 3
+    assert all(c.why.startswith("known error, not tested") for c in known)
 
 
 def test_every_check_says_why_its_tolerance():

@@ -244,10 +244,13 @@ def markdown(reports: dict) -> str:
                 if k != "rows":
                     lines.append(f"| {text} | {k} | {v['MSE']:+.1f} | {v['MAE']:.1f} | {v['spearman']:.2f} | "
                                  f"{v['pairs_right']}/{v['pairs']} |")
-        lines += ["", "| reaction | records | T (K) | dH exp | dG exp | " + " | ".join(
-            f"E, dH, dG ({t})" for t, _ in gas) + " |", "|---|---|---|---|---|" + "---|" * len(gas)]
+        fast_e = {(r["reaction"], tuple(r["records"])): r["E"] for r in (fast or {"rows": []})["rows"]}
+        lines += ["", "| reaction | records | T (K) | dH exp | dG exp | " + ("E (GFN2-xTB) | " if fast else "")
+                  + " | ".join(f"E, dH, dG ({t})" for t, _ in gas) + " |",
+                  "|---|---|---|---|---|" + ("---|" if fast else "") + "---|" * len(gas)]
         for k, row in enumerate(gas[0][1]["rows"]):
-            cells = [f"{g['rows'][k]['E']:.1f}, {g['rows'][k]['dH']:.1f}, {g['rows'][k]['dG']:.1f}" for _, g in gas]
+            cells = ([f"{fast_e.get((row['reaction'], tuple(row['records'])), float('nan')):.1f}"] if fast else []) + [
+                f"{g['rows'][k]['E']:.1f}, {g['rows'][k]['dH']:.1f}, {g['rows'][k]['dG']:.1f}" for _, g in gas]
             lines.append(f"| {row['reaction']}{' (weak)' if row['weak'] else ''} | {', '.join(row['records'])} | "
                          f"{row['T']:.0f} | {row['dH_exp']:.1f} | {row['dG_exp']:.1f} | " + " | ".join(cells) + " |")
     return "\n".join(lines)

@@ -187,7 +187,62 @@ def _look(args) -> int:
                                    step_deg=15.0)
             print(f"  relaxed torsion profile of site {best['label']} (0 deg = s-cis):")
             print("\n".join(text_profile(a, e)))
+    if not args.no_ts:
+        _look_as_rank(args, dph_smiles)
     return 0
+
+
+def _look_as_rank(args, dph_smiles: str) -> None:
+    """The answer `dienes rank` gives for this one diene, from the model of a finished run
+    in --workdir: the same code path (rank_in_process) on a one-row library, reusing that
+    run's results (the reference set, and this diene if it was there) and adding its own."""
+    import json
+    import tempfile
+
+    import pandas as pd
+
+    from . import settings as cfg
+    from .outputs import is_true, times_text
+    from .run import rank_in_process
+    workdir = Path(args.workdir).resolve()
+    results = workdir / "results"
+    if not (results / "model.json").is_file():
+        print(f"\nno predicted log10 k: `look` predicts with the model of a finished `dienes rank` in "
+              f"--workdir ({workdir}), and there is none. Run `dienes rank` there once (it computes the "
+              "reference set), then look again for the same answer as rank.")
+        return
+    model = json.loads((results / "model.json").read_text())
+    if "config" not in model:
+        print(f"\nno predicted log10 k: {results / 'model.json'} was written by an older version; rank again")
+        return
+    config = model["config"] | {"dienophile": dph_smiles}     # the run's settings, this dienophile
+    if not Path(config["reference"]).is_absolute():
+        config["reference"] = str(workdir / config["reference"])
+    with tempfile.TemporaryDirectory() as tmp:
+        lib = Path(tmp) / "look.csv"
+        pd.DataFrame({"id": ["look"], "smiles": [args.smiles]}).to_csv(lib, index=False)
+        config["library"] = str(lib)
+        table, _, summary = rank_in_process(cfg.validate(config), cache_dir=results,
+                                            manifest_path=Path(tmp) / "manifest.json")
+    r = table.iloc[0]
+    print(f"\nas `dienes rank` answers (model of {results / 'model.json'}, dienophile {dph_smiles}):")
+    if pd.isna(r["rank"]):
+        print(f"  not ranked: {r['status']}: {r['message']}")
+        return
+    domain = "yes" if is_true(r["in_domain"]) else f"no, extrapolation ({r['domain_note']})"
+    if is_true(r["in_domain"]) and not is_true(r.get("dienophile_in_reference", True)):
+        domain = f"dienophile transfer ({r['domain_note']})"
+    times = times_text(r.get("times_faster_than_butadiene"))
+    print(f"  log10 k {r['log10_k_pred']:+.2f} [{r['log10_k_low']:+.2f}, {r['log10_k_high']:+.2f}]"
+          + (f", x{times} butadiene" if times else "") + f"; level {r['level']}; in domain: {domain}")
+    try:
+        run = pd.read_csv(results / "ranking.csv")
+        above = int((run["log10_k_pred"] > r["log10_k_pred"]).sum())
+        print(f"  it would come {above + 1} of {int(run['rank'].notna().sum()) + 1} in that run's ranking")
+    except (OSError, KeyError, ValueError):
+        pass
+    if r.get("message"):
+        print(f"  note: {r['message']}")
 
 
 def main(argv=None) -> int:
@@ -226,6 +281,9 @@ def main(argv=None) -> int:
     lk.add_argument("--backend", choices=["xtb-python", "tblite"], help="GFN2-xTB backend (default: the config's)")
     lk.add_argument("--no-ts", action="store_true", help="skip the transition-structure search (default: search)")
     lk.add_argument("--no-profile", action="store_true", help="skip the torsion profile (default: scan)")
+    lk.add_argument("--workdir", default=".",
+                    help="a directory with a finished `dienes rank`: its model gives the predicted log10 k, "
+                         "interval, domain and level, as rank would (default: the current directory)")
     lk.set_defaults(func=_look)
     args = ap.parse_args(argv)
     try:

@@ -108,6 +108,27 @@ def scale_line(summary: dict) -> str:
     return f"ranking for dienophile {summary.get('run_dienophile', '')}; {level_text(summary)}; {scale_text(summary)}"
 
 
+def times_text(value) -> str:
+    """A multiple of butadiene's rate constant, as a chemist reads it."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return ""
+    if not np.isfinite(v):
+        return ""
+    return f"{v:.2g}" if v < 10 else f"{v:,.0f}" if v < 1e5 else f"{v:.1e}"
+
+
+def accuracy_text(model: dict) -> str:
+    """The model's leave-one-out accuracy in bench terms."""
+    bench = model.get("bench", {})
+    if bench.get("pairs_right_of_10") is None:
+        return ""
+    return (f"On the reference set (leave-one-out) about {bench['pairs_right_of_10']} of 10 pairs of dienes "
+            f"come out in the measured order; a predicted rate constant is typically off by a factor of "
+            f"{bench['typical_factor']:g}.")
+
+
 def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, top: int = 10) -> list[str]:
     summary = summary or {}
     counts = Counter(ranking["status"])
@@ -116,6 +137,19 @@ def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, t
              + (", " + ", ".join(f"{n} {s}" for s, n in sorted(counts.items())) if counts else "")]
     if summary:
         lines.append(scale_line(summary))
+    if "tier" in ranking and ranking["tier"].notna().any():
+        first = ranking[ranking["tier"] == 1].sort_values("rank")
+        names = [f"{r['id']}{' ' + r['name'] if isinstance(r.get('name'), str) and r['name'] else ''} "
+                 f"(x{times_text(r['times_faster_than_butadiene']) or '?'} butadiene)"
+                 for _, r in first.head(8).iterrows()]
+        more = f" and {len(first) - 8} more" if len(first) > 8 else ""
+        lines.append(f"try first (tier 1, {len(first)} diene(s) the model cannot order among themselves): "
+                     + ", ".join(names) + more)
+        if summary and accuracy_text(summary):
+            lines.append(accuracy_text(summary))
+        if summary and not summary.get("bench", {}).get("dienophile_in_reference", True):
+            lines.append("the dienophile is not in the reference set: rates are transferred from "
+                         f"{summary.get('base_dienophile', 'the reference dienophile')} (see domain_note)")
     ranked = ranking[ranking["rank"].notna()].sort_values("rank").head(top)
     main_level = summary.get("ranking_level", FAST_LEVEL)
     if len(ranked):

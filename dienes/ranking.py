@@ -438,3 +438,97 @@ def _unranked(rec: dict, computed: Computed, ok: pd.DataFrame) -> dict:
         out["status"] = statuses[0] if statuses else "missing"
     out["message"] = "; ".join(filter(None, [rec["message"]] + sorted(set(msgs))))
     return out
+
+
+# ------------------------------------------------------------- read at the bench
+
+YARDSTICK_SMILES = "C=CC=C"      # rates are also given as multiples of butadiene's, same dienophile
+
+
+def _canonical_or_none(smiles) -> str | None:
+    from rdkit import Chem
+    m = Chem.MolFromSmiles(str(smiles)) if isinstance(smiles, str) and smiles else None
+    return Chem.MolToSmiles(m) if m is not None else None
+
+
+def yardstick(table: pd.DataFrame, ref_table: pd.DataFrame, summary: dict) -> tuple[dict, str]:
+    """The model's own log10 k for butadiene with the run's dienophile, per level
+    ({level: log10 k}), and where it came from: a library row that is butadiene, else the
+    reference row of butadiene measured with the run's dienophile. ({}, why) when neither."""
+    bd = _canonical_or_none(YARDSTICK_SMILES)
+    lib = table[table["rank"].notna() & (table["smiles"].map(_canonical_or_none) == bd)]
+    if len(lib):
+        r = lib.iloc[0]
+        out = {FAST_LEVEL: float(r["log10_k_xtb"])}
+        if r["level"] != FAST_LEVEL:
+            out[str(r["level"])] = float(r["log10_k_pred"])
+        return out, f"library row {r['id']}"
+    run_dph = canonical(summary.get("run_dienophile", ""))
+    if len(ref_table) and "log10_k_fit" in ref_table:
+        ref = ref_table[(ref_table["smiles"].map(_canonical_or_none) == bd)
+                        & (ref_table["dienophile_smiles"].map(_canonical_or_none) == run_dph)]
+        if len(ref):
+            r = ref.iloc[0]
+            out = {FAST_LEVEL: float(r["log10_k_fit"])} if pd.notna(r.get("log10_k_fit")) else {}
+            if pd.notna(r.get("log10_k_fit_refined")) and summary.get("ranking_level", FAST_LEVEL) != FAST_LEVEL:
+                out[summary["ranking_level"]] = float(r["log10_k_fit_refined"])
+            if out:
+                return out, f"reference row {r['id']}"
+    return {}, ("butadiene was not computed with this dienophile: add C=CC=C to the library to get "
+                "times_faster_than_butadiene")
+
+
+def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
+    """What a chemist reads first, added to the ranking table:
+
+    - times_faster_than_butadiene: 10^(log10 k - log10 k of butadiene), both predicted by the
+      row's model with the run's dienophile (see `yardstick`);
+    - tier: ranked rows cut into groups the model can tell apart. Walking down the ranking, a
+      new tier starts where a row lies more than sqrt(2) x the leave-one-out RMSE below the
+      first row of the current tier: two predictions each off by about one RMSE differ by
+      sqrt(2) RMSE by chance, so rows within a tier are not ordered by the model;
+    - dienophile_in_reference: whether the run's dienophile is one the model was fitted with.
+      When it is not, every log10 k, interval and rank is a transfer from the reference
+      dienophile (said in domain_note; the intervals do not include that transfer error).
+    Returns (table, summary additions)."""
+    out = table.copy()
+    yard, source = yardstick(out, ref_table, summary)
+    base = out["level"].map(lambda lv: yard.get(str(lv), np.nan)).astype(float)
+    out["times_faster_than_butadiene"] = np.where(out["log10_k_pred"].notna() & base.notna(),
+                                                  10.0 ** (out["log10_k_pred"].astype(float) - base), np.nan)
+    rmse = float(summary.get("cv_rmse_log10k", np.nan))
+    width = math.sqrt(2.0) * rmse
+    out["tier"] = pd.Series(pd.NA, index=out.index, dtype="Int64")
+    ranked = out[out["rank"].notna()].sort_values("rank")
+    tier, top = 0, None
+    for idx, value in ranked["log10_k_pred"].items():
+        if top is None or not np.isfinite(width) or value < top - width:
+            tier, top = tier + 1, value
+        out.loc[idx, "tier"] = tier
+    run_dph = canonical(summary.get("run_dienophile", ""))
+    fitted = {canonical(d) for d in [summary.get("base_dienophile", "")]
+              + list(summary.get("dienophile_terms", {}).values()) if d}
+    in_ref = run_dph in fitted
+    out["dienophile_in_reference"] = in_ref
+    if not in_ref:
+        transfer = (f"dienophile not in the reference set: log10 k and interval transferred from "
+                    f"{summary.get('base_dienophile', 'the reference dienophile')} (order more trustworthy "
+                    "than size)")
+        has = out["rank"].notna()
+        out.loc[has, "domain_note"] = [("; ".join(filter(None, [str(n) if isinstance(n, str) else "", transfer])))
+                                       for n in out.loc[has, "domain_note"]]
+    cols = list(out.columns)
+    for new, after in (("tier", "rank"), ("dienophile_in_reference", "in_domain"),
+                       ("times_faster_than_butadiene", "log10_k_high")):
+        cols.remove(new)
+        cols.insert(cols.index(after) + 1, new)
+    out = out[cols]
+    pairwise = float(summary.get("cv_pairwise_accuracy", np.nan))
+    extra = {"bench": {
+        "yardstick": {"smiles": YARDSTICK_SMILES, "log10_k": yard, "source": source},
+        "tier_width_log10": round(width, 3) if np.isfinite(width) else None,
+        "tiers": int(out["tier"].max()) if out["tier"].notna().any() else 0,
+        "pairs_right_of_10": round(10 * pairwise) if np.isfinite(pairwise) else None,
+        "typical_factor": round(10 ** rmse, 1) if np.isfinite(rmse) else None,
+        "dienophile_in_reference": in_ref}}
+    return out, extra

@@ -19,7 +19,8 @@ import pandas as pd
 from rdkit import Chem
 from rdkit.Chem.Draw import rdMolDraw2D
 
-from .outputs import FAST_LEVEL, interval_label, is_true, level_barrier, level_text, scale_text
+from .outputs import (FAST_LEVEL, accuracy_text, interval_label, is_true, level_barrier, level_text,
+                      scale_text, times_text)
 
 SAFETY = [
     "Predictions are estimates for prioritising experiments. They are not hazard data.",
@@ -70,9 +71,17 @@ GLOSSARY_KIND = {
 }
 GLOSSARY_COLUMNS = {
     "rank": "1 = fastest predicted among the ranked rows",
+    "tier": "groups the model can tell apart: walking down the ranking, a new tier starts where a diene "
+            "lies more than sqrt(2) x the leave-one-out error below the first diene of its tier; inside a "
+            "tier the order is not meaningful",
+    "x butadiene": "predicted rate constant as a multiple of 1,3-butadiene's with the same dienophile, "
+                   "both from the same model (1 = as fast as butadiene; 0.01 = a hundred times slower)",
     "in domain": "yes: the diene's descriptors and its kind of diene unit are covered by the reference "
                  "set; extrapolation: the prediction leaves what the reference kinetics back (the reason "
-                 "is given)",
+                 "is given). 'Leverage' in a reason measures how unusual the combination of descriptors "
+                 "is against the reference dienes; above 3p/n (p descriptors + 1, n reference dienes) the "
+                 "diene is unlike any of them in that combination, even if each value alone is in range. "
+                 "'dienophile transfer': the run's dienophile is not one the model was fitted with",
     "log10 k": "predicted log10 of the rate constant relative to 1,3-butadiene, with its prediction "
                "interval",
     "level": "the level of theory the row's rank, log10 k and barrier come from: the refined level "
@@ -114,6 +123,9 @@ tr.notok td{background:#fbf3f3}tr.extrap td{background:#fff9e6}
 .status-ok{color:#17663a;font-weight:600}.status-bad{color:#a12a2a;font-weight:600}
 .badge{display:inline-block;padding:1px 6px;border-radius:8px;font-size:0.85em;font-weight:600}
 .badge.in{background:#e3f4ea;color:#17663a}.badge.out{background:#fde8c8;color:#8a4b00}
+.badge.transfer{background:#e8eefc;color:#23408e}
+.tryfirst{border:2px solid #17663a;border-radius:6px;padding:8px 14px;margin:10px 0;background:#f6fbf8}
+.tryfirst ol{margin:4px 0 4px 18px;padding:0}.limits{border-left:4px solid #8a4b00;padding:4px 12px;margin:8px 0}
 .grid{display:flex;flex-wrap:wrap;gap:18px}.card{border:1px solid #e3e7ee;padding:8px}
 .kv td:first-child{color:#5b6578}
 .small{font-size:0.8em;color:#5b6578}
@@ -290,6 +302,9 @@ def plot_profiles(profiles: list[tuple[str, np.ndarray, np.ndarray]]) -> str:
 def _domain_cell(row) -> tuple[str, str]:
     if row["status"] not in ("ok", "ts_unverified") or pd.isna(row["rank"]):
         return "", ""
+    if is_true(row["in_domain"]) and not is_true(row.get("dienophile_in_reference", True)):
+        return (f"<span class='badge transfer' title='{esc(row.get('domain_note', ''))}'>dienophile "
+                "transfer</span>", "in")
     if is_true(row["in_domain"]):
         return "<span class='badge in'>yes</span>", "in"
     return (f"<span class='badge out' title='{esc(row.get('domain_note', ''))}'>extrapolation</span>"
@@ -313,18 +328,25 @@ def _site_atoms(label) -> list[int]:
 
 
 COLUMNS = [  # (header, sortable, secondary)
-    ("rank", True, False), ("structure", False, False), ("id", True, False), ("status", True, False),
-    ("in domain", True, False), ("log10 k (interval)", True, False), ("level", True, False),
+    ("rank", True, False), ("tier", True, False), ("structure", False, False), ("id", True, False),
+    ("status", True, False), ("in domain", True, False), ("log10 k (interval)", True, False),
+    ("x butadiene", True, False), ("level", True, False),
     ("barrier kJ/mol", True, False), ("barrier GFN2-xTB kJ/mol", True, True),
     ("s-cis penalty kJ/mol (GFN2-xTB)", True, False), ("HOMO eV", True, True), ("LUMO eV", True, True),
     ("regio (orbitals)", False, True), ("regio (saddle)", False, True), ("endo/exo", False, True),
     ("reaction energy kJ/mol", True, True), ("site", True, False), ("message", False, False)]
 
 
+def _column_help(header: str) -> str:
+    """The glossary entry a column header points to ('' when none)."""
+    key = max((k for k in GLOSSARY_COLUMNS if header.startswith(k.split(" /")[0])), key=len, default="")
+    return GLOSSARY_COLUMNS.get(key, "")
+
+
 def _table(table: pd.DataFrame, label: str) -> str:
     head = "<thead><tr>" + "".join(
-        f"<th class='{'sortable' if s else ''}{' secondary' if sec else ''}'>{esc(c)}</th>"
-        for c, s, sec in COLUMNS) + "</tr></thead>"
+        f"<th class='{'sortable' if s else ''}{' secondary' if sec else ''}' title='{esc(_column_help(c))}'>"
+        f"{esc(c)}</th>" for c, s, sec in COLUMNS) + "</tr></thead>"
     order = table.assign(_r=table["rank"].astype(float).fillna(1e9)).sort_values(["_r", "row"])
     body = []
     for _, r in order.iterrows():
@@ -345,13 +367,18 @@ def _table(table: pd.DataFrame, label: str) -> str:
         kind = _text(r.get("site_kind"))
         klass = kind + (" aromatic" if "aromatic" in _text(r.get("domain_note")) else "")
         sort_rank = "" if not ranked else str(int(r["rank"]))
+        tier = "" if pd.isna(r.get("tier", np.nan)) else str(int(r["tier"]))
         cells = [
             f"<td class='num' data-sort='{sort_rank or 1e9}'>{sort_rank}</td>",
+            f"<td class='num' data-sort='{tier or 1e9}'>{tier}</td>",
             f"<td class='depict'>{depict(smiles, atoms, atoms) if smiles else ''}</td>",
             f"<td>{esc(r['id'])}<div class='small'>{esc(r['smiles'])}</div></td>",
-            f"<td class='{'status-ok' if ok else 'status-bad'}'>{esc(r['status'])}</td>",
+            f"<td class='{'status-ok' if ok else 'status-bad'}' title='{esc(GLOSSARY_STATUS.get(r['status'], ''))}'>"
+            f"{esc(r['status'])}</td>",
             f"<td data-sort='{dom_key}'>{dom_html}</td>",
             f"<td class='num' data-sort='{_num(r['log10_k_pred'], '{:.4f}')}'>{pred}</td>",
+            f"<td class='num' data-sort='{_num(r.get('times_faster_than_butadiene'), '{:.6g}')}'>"
+            f"{times_text(r.get('times_faster_than_butadiene')) if ranked else ''}</td>",
             f"<td>{esc(r.get('level')) if ranked else ''}</td>",
             f"<td class='num'>{_num(level_barrier(r), '{:.1f}') if ranked else ''}</td>",
             f"<td class='num secondary'>{_num(r['barrier_kJmol'], '{:.1f}')}</td>",
@@ -547,6 +574,68 @@ def reference_caution(reference: pd.DataFrame) -> str:
     return text
 
 
+TIER_NAMES_SHOWN = 12      # dienes named per tier in the try-first box
+
+
+def tier_lines(table: pd.DataFrame, model: dict, tiers: int = 2) -> list[tuple[int, list[str]]]:
+    """[(tier, ['id (x butadiene)', ...]), ...] for the first `tiers` tiers."""
+    out = []
+    ranked = table[table["rank"].notna() & table.get("tier", pd.Series(dtype=float)).notna()].sort_values("rank")
+    for t in sorted(ranked["tier"].unique())[:tiers]:
+        rows = ranked[ranked["tier"] == t]
+        names = []
+        for _, r in rows.head(TIER_NAMES_SHOWN).iterrows():
+            times = times_text(r.get("times_faster_than_butadiene"))
+            flag = "" if is_true(r["in_domain"]) else ", extrapolation"
+            star = "" if str(r.get("level")) == model.get("ranking_level", FAST_LEVEL) else ", GFN2-xTB only"
+            name = f" {r['name']}" if isinstance(r.get("name"), str) and r["name"] else ""
+            names.append(f"{r['id']}{name} ({'x' + times + ' butadiene' if times else 'no butadiene yardstick'}"
+                         f"{flag}{star})")
+        if len(rows) > TIER_NAMES_SHOWN:
+            names.append(f"and {len(rows) - TIER_NAMES_SHOWN} more")
+        out.append((int(t), names))
+    return out
+
+
+def _try_first(table: pd.DataFrame, model: dict) -> str:
+    bench = model.get("bench", {})
+    lines = tier_lines(table, model)
+    if not lines:
+        return ""
+    width = bench.get("tier_width_log10")
+    items = "".join(f"<li><b>{'Try first' if t == 1 else f'Tier {t}'}</b>: {esc('; '.join(names))}</li>"
+                    for t, names in lines)
+    how = (f"Tiers: walking down the ranking, a new tier starts where a diene lies more than {width:.2f} log "
+           "units (sqrt(2) x the leave-one-out error) below the first diene of its tier; within a tier the "
+           "model cannot tell the dienes apart, so try them in any order." if width else "")
+    transfer = ("" if bench.get("dienophile_in_reference", True) else
+                f" Your dienophile is not in the reference set: the order is computed with it, but every "
+                f"rate is transferred from {model.get('base_dienophile', 'the reference dienophile')}; "
+                "add two or three of your own measured pairs to the reference file to recalibrate.")
+    return (f"<div class='tryfirst'><b>Which dienes first</b> (with {esc(model.get('run_dienophile', ''))}, "
+            f"ranked at {esc(model.get('ranking_level', FAST_LEVEL))})<ol>{items}</ol>"
+            f"<div class='small'>{esc(accuracy_text(model))} {esc(how)}{esc(transfer)}</div></div>")
+
+
+FAST_LEVEL_LIMITS = [
+    "GFN2-xTB barriers are far too low in size (66 kJ/mol below measured gas-phase activation enthalpies "
+    "on average; docs/validation.md): only their order within a family is used.",
+    "It over-rewards alkyl groups and large flat dienes (too much dispersion): on the demo it put "
+    "cyclopentadiene 25th of 46, behind 2,3-dimethylbutadiene and two anthracenes.",
+    "It places furan's HOMO below butadiene's, against the measured ionisation energies.",
+]
+
+
+def _fast_level_limits(table: pd.DataFrame) -> str:
+    ranked = table[table["rank"].notna()]
+    n_fast = int((ranked["level"] == FAST_LEVEL).sum()) if len(ranked) else 0
+    if not n_fast:
+        return ""
+    return (f"<div class='limits'><b>{n_fast} of {len(ranked)} ranked rows rest on GFN2-xTB alone.</b> "
+            "What that level cannot do:<ul>" + "".join(f"<li>{esc(x)}</li>" for x in FAST_LEVEL_LIMITS)
+            + "</ul></div>")
+
+
 def _level_line(table: pd.DataFrame, model: dict) -> str:
     """Which level ranks how many rows."""
     ranked = table[table["rank"].notna()]
@@ -591,7 +680,9 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
         f"<p class='sub'>{esc(len(table))} input rows · "
         + " · ".join(f"{esc(n)} {esc(s)}" for s, n in sorted(counts.items()))
         + f" · generated {esc(_dt.datetime.now().strftime('%Y-%m-%d %H:%M'))}</p>",
+        _try_first(table, model),
         conditions,
+        _fast_level_limits(table),
         "<div class='caution'><b>Cautions</b><ul>" + "".join(f"<li>{esc(c)}</li>" for c in SAFETY) + "</ul></div>",
         f"<div class='refnote'><b>Reference kinetics.</b> {esc(reference_caution(reference))}</div>",
         "<h2>Ranking</h2>",

@@ -490,7 +490,8 @@ def rank_tables(manifest: dict, computed, config: dict):
             f"ranked at GFN2-xTB: not among the {rows} best GFN2-xTB rows that refine.rows prices"))
     summary |= {"ranking_level": refined_label or ranking.FAST_LEVEL, "refine_rows": config["refine"]["rows"]}
     table = ranking.rank_table(manifest["records"], computed, sites)
-    return table, sites, summary, ref_table
+    table, bench = ranking.bench_view(table, summary, ref_table)
+    return table, sites, summary | bench, ref_table
 
 
 def rank(config: dict, manifest_path, out_dir, results="results", shortlist_path=None) -> list[str]:
@@ -511,34 +512,37 @@ def rank(config: dict, manifest_path, out_dir, results="results", shortlist_path
                 "seed": manifest["seed"], "settings": manifest["settings"],
                 "temperature_K": config["temperature_K"], "solvent": config["solvent"],
                 "transition_state": config["transition_state"],
-                "dienophile": {k: run_dph.get(k) for k in ("smiles", "homo_eV", "lumo_eV", "reactive_bond")}}
+                "dienophile": {k: run_dph.get(k) for k in ("smiles", "homo_eV", "lumo_eV", "reactive_bond")},
+                "config": config}     # the run's whole config: `dienes look` predicts with the same
     outputs.write_model(summary, out_dir / "model.json")
     return outputs.summary_lines(table, out_dir, summary)
 
 
-def rank_in_process(config: dict, cache_dir=None, reference_ids=None):
+def rank_in_process(config: dict, cache_dir=None, reference_ids=None, manifest_path=None):
     """Rank config['library'] without Snakemake, one structure after another.
 
     Result files are read from / written to `cache_dir` when given (the same
     layout as the workflow's results/). `reference_ids`, when given, keeps only
-    those reference rows in the fit (for leave-out checks). Returns
-    (ranking DataFrame, sites DataFrame, model summary dict).
+    those reference rows in the fit (for leave-out checks); `manifest_path` keeps the
+    manifest elsewhere (so that a workflow's own results/manifest.json is left alone).
+    Returns (ranking DataFrame, sites DataFrame, model summary dict).
     """
     import tempfile
     config = cfg.validate(config)
     tmp = tempfile.TemporaryDirectory()
     cache = Path(cache_dir) if cache_dir else Path(tmp.name)
-    manifest = prepare(config, cache / "manifest.json", results=cache)
+    manifest_path = Path(manifest_path) if manifest_path else cache / "manifest.json"
+    manifest = prepare(config, manifest_path, results=cache)
     if reference_ids is not None:
         manifest["reference_records"] = [r for r in manifest["reference_records"]
                                          if r["id"] in set(reference_ids)]
     for bid in manifest["batches"]["structures"]:
-        compute_structures(config, cache / "manifest.json", bid, batch_path(cache, "structures", bid), cache)
+        compute_structures(config, manifest_path, bid, batch_path(cache, "structures", bid), cache)
     for dhash, smiles in manifest["dienophiles"].items():
         if not dienophile_path(cache, dhash).is_file():
             dienophile(config, smiles, dienophile_path(cache, dhash))
     for bid in manifest["batches"]["transition"]:
-        compute_transitions(config, cache / "manifest.json", bid, batch_path(cache, "transition", bid), cache)
+        compute_transitions(config, manifest_path, bid, batch_path(cache, "transition", bid), cache)
     computed = load_computed(manifest, cache)
     if config["refine"]["rows"] != "none":
         from .refine import level_from_config

@@ -202,9 +202,20 @@ def test_console_names_the_log_of_a_failed_job(tmp_path):
     assert cli.failed_logs(tmp_path) == [f"compute_structures: {tmp_path / 'logs/structures/abc.log'}"]
 
 
-def test_console_look(capsys):
-    assert cli.main(["look", "C/C=C\\C=C"]) == 0
+def test_console_look(capsys, tmp_path):
+    assert cli.main(["look", "C/C=C\\C=C", "--workdir", str(tmp_path)]) == 0
     text = capsys.readouterr().out
     assert "s-cis penalty" in text and "HOMO" in text and "relaxed torsion profile" in text
     assert "barrier" in text and "imaginary mode" in text
     assert text.count("kJ/mol |") == 13                      # 0..180 deg in 15 deg steps
+    assert "no predicted log10 k" in text and "Run `dienes rank` there once" in text
+
+
+def test_look_gives_the_answer_rank_gave(run_dir, capsys):
+    # one diene through `look` against the finished run's own row: same model, same numbers
+    assert cli.main(["look", "C1=CCC=C1", "--workdir", str(run_dir), "--no-profile"]) == 0
+    text = capsys.readouterr().out.split("as `dienes rank` answers")[1]
+    row = next(r for r in _ranking(run_dir) if r["id"] == "R-2")
+    assert f"log10 k {float(row['log10_k_pred']):+.2f} [{float(row['log10_k_low']):+.2f}, " in text
+    assert f"level {row['level']}" in text and "in domain:" in text
+    assert f"it would come {int(row['rank'])} of " in text

@@ -1,0 +1,52 @@
+"""What the chemist reads first: tiers, multiples of butadiene's rate, the dienophile in the domain."""
+import numpy as np
+import pandas as pd
+import pytest
+
+from dienes import ranking
+
+
+def _table(preds, smiles=None):
+    n = len(preds)
+    return pd.DataFrame({
+        "row": range(1, n + 1), "id": [f"x{i}" for i in range(n)],
+        "smiles": smiles or ["C=CC(C)=C"] * n, "rank": pd.array(range(1, n + 1), dtype="Int64"),
+        "level": ["B3LYP/def2-SVP"] * n, "in_domain": [True] * n, "domain_note": [""] * n,
+        "log10_k_pred": preds, "log10_k_high": preds, "log10_k_xtb": preds})
+
+
+SUMMARY = {"cv_rmse_log10k": 0.5, "cv_pairwise_accuracy": 0.83, "ranking_level": "B3LYP/def2-SVP",
+           "run_dienophile": "O=C1OC(=O)C=C1", "base_dienophile": "O=C1C=CC(=O)O1", "dienophile_terms": {}}
+
+
+def test_tiers_break_where_the_model_can_tell_rows_apart():
+    # two predictions each off by one RMSE differ by sqrt(2) RMSE by chance (common practice:
+    # the spread of a difference of two independent errors); 0.5 log units -> breaks beyond 0.707
+    out, extra = ranking.bench_view(_table([3.0, 2.5, 1.9, 1.0, 0.9]), SUMMARY, pd.DataFrame())
+    assert out["tier"].tolist() == [1, 1, 2, 3, 3]
+    assert extra["bench"]["tier_width_log10"] == pytest.approx(0.707, abs=0.001)
+    # 0.83 of pairs right -> "about 8 of 10"; RMSE 0.5 -> a factor of 3.2 (10^0.5)
+    assert extra["bench"]["pairs_right_of_10"] == 8 and extra["bench"]["typical_factor"] == 3.2
+
+
+def test_times_faster_than_butadiene_uses_the_same_model_and_dienophile():
+    t = _table([2.2, 0.2, -1.8], smiles=["C1=CCC=C1", "C=CC=C", "c1ccoc1"])
+    out, extra = ranking.bench_view(t, SUMMARY, pd.DataFrame())
+    assert out["times_faster_than_butadiene"].tolist() == pytest.approx([100.0, 1.0, 0.01])
+    assert extra["bench"]["yardstick"]["source"] == "library row x1"
+
+
+def test_without_butadiene_the_column_is_empty_and_says_why():
+    out, extra = ranking.bench_view(_table([1.0, 0.5]), SUMMARY, pd.DataFrame())
+    assert out["times_faster_than_butadiene"].isna().all()
+    assert "add C=CC=C to the library" in extra["bench"]["yardstick"]["source"]
+
+
+def test_a_dienophile_outside_the_reference_set_is_flagged_on_every_ranked_row():
+    out, extra = ranking.bench_view(_table([1.0, 0.5]), SUMMARY | {"run_dienophile": "C=CC#N"}, pd.DataFrame())
+    assert not extra["bench"]["dienophile_in_reference"]
+    assert (~out["dienophile_in_reference"]).all()
+    assert all("dienophile not in the reference set" in n for n in out["domain_note"])
+    same, _ = ranking.bench_view(_table([1.0, 0.5]), SUMMARY, pd.DataFrame())
+    assert same["dienophile_in_reference"].all() and not any(same["domain_note"])
+    assert np.isfinite(out["log10_k_pred"]).all()

@@ -119,6 +119,34 @@ def times_text(value) -> str:
     return f"{v:.2g}" if v < 10 else f"{v:,.0f}" if v < 1e5 else f"{v:.1e}"
 
 
+def hours_text(value) -> str:
+    """A half-life in hours, in the unit a chemist would say it in."""
+    try:
+        h = float(value)
+    except (TypeError, ValueError):
+        return ""
+    if not np.isfinite(h):
+        return ""
+    if h < 1.0 / 60:
+        return f"{h * 3600:.2g} s"
+    if h < 1:
+        return f"{h * 60:.2g} min"
+    if h < 48:
+        return f"{h:.2g} h"
+    return f"{h / 24:.2g} days" if h < 24 * 365 else f"{h / 24 / 365:.2g} years"
+
+
+def time_text(model: dict) -> str:
+    """What the numbers say about reaction time: half-lives from an anchor, or plainly nothing."""
+    hl = model.get("bench", {}).get("half_life", {})
+    if not hl.get("given"):
+        return ("These are relative rates: no reaction time can be derived from them without one measured "
+                "rate constant under your conditions (config anchor.k_L_per_mol_s).")
+    return (f"Half-lives for both partners starting at {hl['concentration_M']:g} mol/L, scaled from the "
+            f"measured k = {hl['k_L_per_mol_s']:g} L/(mol s) of {hl['smiles']} ({hl['source']}); they carry the "
+            "model's factor of uncertainty.")
+
+
 def accuracy_text(model: dict) -> str:
     """The model's leave-one-out accuracy in bench terms."""
     bench = model.get("bench", {})
@@ -140,13 +168,16 @@ def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, t
     if "tier" in ranking and ranking["tier"].notna().any():
         first = ranking[ranking["tier"] == 1].sort_values("rank")
         names = [f"{r['id']}{' ' + r['name'] if isinstance(r.get('name'), str) and r['name'] else ''} "
-                 f"(x{times_text(r['times_faster_than_butadiene']) or '?'} butadiene)"
+                 f"(x{times_text(r['times_faster_than_butadiene']) or '?'} butadiene"
+                 + (f", half-life {hours_text(r['half_life_h'])}" if hours_text(r.get("half_life_h")) else "") + ")"
                  for _, r in first.head(8).iterrows()]
         more = f" and {len(first) - 8} more" if len(first) > 8 else ""
         lines.append(f"try first (tier 1, {len(first)} diene(s) the model cannot order among themselves): "
                      + ", ".join(names) + more)
         if summary and accuracy_text(summary):
             lines.append(accuracy_text(summary))
+        if summary:
+            lines.append(time_text(summary))
         if summary and not summary.get("bench", {}).get("dienophile_in_reference", True):
             lines.append("the dienophile is not in the reference set: rates are transferred from "
                          f"{summary.get('base_dienophile', 'the reference dienophile')} (see domain_note)")

@@ -451,11 +451,12 @@ def _canonical_or_none(smiles) -> str | None:
     return Chem.MolToSmiles(m) if m is not None else None
 
 
-def yardstick(table: pd.DataFrame, ref_table: pd.DataFrame, summary: dict) -> tuple[dict, str]:
-    """The model's own log10 k for butadiene with the run's dienophile, per level
-    ({level: log10 k}), and where it came from: a library row that is butadiene, else the
-    reference row of butadiene measured with the run's dienophile. ({}, why) when neither."""
-    bd = _canonical_or_none(YARDSTICK_SMILES)
+def yardstick(table: pd.DataFrame, ref_table: pd.DataFrame, summary: dict,
+              smiles: str = YARDSTICK_SMILES) -> tuple[dict, str]:
+    """The model's own log10 k for one diene (butadiene by default) with the run's dienophile,
+    per level ({level: log10 k}), and where it came from: a library row that is that diene,
+    else its reference row measured with the run's dienophile. ({}, why) when neither."""
+    bd = _canonical_or_none(smiles)
     lib = table[table["rank"].notna() & (table["smiles"].map(_canonical_or_none) == bd)]
     if len(lib):
         r = lib.iloc[0]
@@ -474,11 +475,12 @@ def yardstick(table: pd.DataFrame, ref_table: pd.DataFrame, summary: dict) -> tu
                 out[summary["ranking_level"]] = float(r["log10_k_fit_refined"])
             if out:
                 return out, f"reference row {r['id']}"
-    return {}, ("butadiene was not computed with this dienophile: add C=CC=C to the library to get "
-                "times_faster_than_butadiene")
+    return {}, (f"{smiles} was not computed with this dienophile: add it to the library to get "
+                + ("times_faster_than_butadiene" if smiles == YARDSTICK_SMILES else "half-lives"))
 
 
-def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
+def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
+               anchor: dict | None = None) -> tuple[pd.DataFrame, dict]:
     """What a chemist reads first, added to the ranking table:
 
     - times_faster_than_butadiene: 10^(log10 k - log10 k of butadiene), both predicted by the
@@ -489,7 +491,11 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame) -> t
       sqrt(2) RMSE by chance, so rows within a tier are not ordered by the model;
     - dienophile_in_reference: whether the run's dienophile is one the model was fitted with.
       When it is not, every log10 k, interval and rank is a transfer from the reference
-      dienophile (said in domain_note; the intervals do not include that transfer error).
+      dienophile (said in domain_note; the intervals do not include that transfer error);
+    - half_life_h, only with an anchor (a measured k in L/(mol s) for one diene with the run's
+      dienophile under the run's conditions): k_i = k_anchor x 10^(log10 k_i - log10 k_anchor),
+      both predicted by the row's model, and t1/2 = 1 / (k_i c) for both partners starting at
+      c mol/L (second order, equal concentrations). Without an anchor no time is given.
     Returns (table, summary additions)."""
     out = table.copy()
     yard, source = yardstick(out, ref_table, summary)
@@ -517,9 +523,21 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame) -> t
         has = out["rank"].notna()
         out.loc[has, "domain_note"] = [("; ".join(filter(None, [str(n) if isinstance(n, str) else "", transfer])))
                                        for n in out.loc[has, "domain_note"]]
+    anchor = anchor or {}
+    half_life = {"given": anchor.get("k_L_per_mol_s") is not None}
+    if half_life["given"]:
+        ref, where = yardstick(out, ref_table, summary, anchor["smiles"])
+        a_base = out["level"].map(lambda lv: ref.get(str(lv), np.nan)).astype(float)
+        k = float(anchor["k_L_per_mol_s"]) * 10.0 ** (out["log10_k_pred"].astype(float) - a_base)
+        out["half_life_h"] = 1.0 / (k * float(anchor["concentration_M"])) / 3600.0
+        half_life |= {"smiles": anchor["smiles"], "k_L_per_mol_s": float(anchor["k_L_per_mol_s"]),
+                      "concentration_M": float(anchor["concentration_M"]), "source": where}
+    new_cols = [("tier", "rank"), ("dienophile_in_reference", "in_domain"),
+                ("times_faster_than_butadiene", "log10_k_high")]
+    if half_life["given"]:
+        new_cols.append(("half_life_h", "times_faster_than_butadiene"))
     cols = list(out.columns)
-    for new, after in (("tier", "rank"), ("dienophile_in_reference", "in_domain"),
-                       ("times_faster_than_butadiene", "log10_k_high")):
+    for new, after in new_cols:
         cols.remove(new)
         cols.insert(cols.index(after) + 1, new)
     out = out[cols]
@@ -530,5 +548,5 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame) -> t
         "tiers": int(out["tier"].max()) if out["tier"].notna().any() else 0,
         "pairs_right_of_10": round(10 * pairwise) if np.isfinite(pairwise) else None,
         "typical_factor": round(10 ** rmse, 1) if np.isfinite(rmse) else None,
-        "dienophile_in_reference": in_ref}}
+        "dienophile_in_reference": in_ref, "half_life": half_life}}
     return out, extra

@@ -19,8 +19,8 @@ import pandas as pd
 from rdkit import Chem
 from rdkit.Chem.Draw import rdMolDraw2D
 
-from .outputs import (FAST_LEVEL, accuracy_text, interval_label, is_true, level_barrier, level_text,
-                      scale_text, times_text)
+from .outputs import (FAST_LEVEL, accuracy_text, hours_text, interval_label, is_true, level_barrier,
+                      level_text, scale_text, time_text, times_text)
 
 SAFETY = [
     "Predictions are estimates for prioritising experiments. They are not hazard data.",
@@ -589,8 +589,9 @@ def tier_lines(table: pd.DataFrame, model: dict, tiers: int = 2) -> list[tuple[i
             flag = "" if is_true(r["in_domain"]) else ", extrapolation"
             star = "" if str(r.get("level")) == model.get("ranking_level", FAST_LEVEL) else ", GFN2-xTB only"
             name = f" {r['name']}" if isinstance(r.get("name"), str) and r["name"] else ""
+            hl = hours_text(r.get("half_life_h"))
             names.append(f"{r['id']}{name} ({'x' + times + ' butadiene' if times else 'no butadiene yardstick'}"
-                         f"{flag}{star})")
+                         f"{', half-life ' + hl if hl else ''}{flag}{star})")
         if len(rows) > TIER_NAMES_SHOWN:
             names.append(f"and {len(rows) - TIER_NAMES_SHOWN} more")
         out.append((int(t), names))
@@ -614,7 +615,8 @@ def _try_first(table: pd.DataFrame, model: dict) -> str:
                 "add two or three of your own measured pairs to the reference file to recalibrate.")
     return (f"<div class='tryfirst'><b>Which dienes first</b> (with {esc(model.get('run_dienophile', ''))}, "
             f"ranked at {esc(model.get('ranking_level', FAST_LEVEL))})<ol>{items}</ol>"
-            f"<div class='small'>{esc(accuracy_text(model))} {esc(how)}{esc(transfer)}</div></div>")
+            f"<div class='small'>{esc(accuracy_text(model))} {esc(time_text(model))} {esc(how)}{esc(transfer)}"
+            "</div></div>")
 
 
 FAST_LEVEL_LIMITS = [

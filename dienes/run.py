@@ -490,7 +490,7 @@ def rank_tables(manifest: dict, computed, config: dict):
             f"ranked at GFN2-xTB: not among the {rows} best GFN2-xTB rows that refine.rows prices"))
     summary |= {"ranking_level": refined_label or ranking.FAST_LEVEL, "refine_rows": config["refine"]["rows"]}
     table = ranking.rank_table(manifest["records"], computed, sites)
-    table, bench = ranking.bench_view(table, summary, ref_table)
+    table, bench = ranking.bench_view(table, summary, ref_table, config.get("anchor"))
     return table, sites, summary | bench, ref_table
 
 

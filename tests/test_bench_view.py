@@ -39,7 +39,7 @@ def test_times_faster_than_butadiene_uses_the_same_model_and_dienophile():
 def test_without_butadiene_the_column_is_empty_and_says_why():
     out, extra = ranking.bench_view(_table([1.0, 0.5]), SUMMARY, pd.DataFrame())
     assert out["times_faster_than_butadiene"].isna().all()
-    assert "add C=CC=C to the library" in extra["bench"]["yardstick"]["source"]
+    assert "C=CC=C was not computed with this dienophile: add it to the library" in extra["bench"]["yardstick"]["source"]
 
 
 def test_a_dienophile_outside_the_reference_set_is_flagged_on_every_ranked_row():
@@ -50,3 +50,14 @@ def test_a_dienophile_outside_the_reference_set_is_flagged_on_every_ranked_row()
     same, _ = ranking.bench_view(_table([1.0, 0.5]), SUMMARY, pd.DataFrame())
     assert same["dienophile_in_reference"].all() and not any(same["domain_note"])
     assert np.isfinite(out["log10_k_pred"]).all()
+
+
+def test_an_anchor_turns_relative_rates_into_half_lives():
+    # second order, equal starting concentrations: t1/2 = 1/(k c) (common practice, any kinetics text)
+    t = _table([2.2, 0.2], smiles=["C1=CCC=C1", "C=CC=C"])
+    anchor = {"smiles": "C=CC=C", "k_L_per_mol_s": 1e-4, "concentration_M": 0.5}
+    out, extra = ranking.bench_view(t, SUMMARY, pd.DataFrame(), anchor)
+    # butadiene: 1/(1e-4 * 0.5) s = 20000 s = 5.56 h; cyclopentadiene 100 times faster
+    assert out["half_life_h"].tolist() == pytest.approx([0.0556, 5.556], rel=1e-3)
+    none, extra_none = ranking.bench_view(t, SUMMARY, pd.DataFrame(), {"k_L_per_mol_s": None})
+    assert "half_life_h" not in none and not extra_none["bench"]["half_life"]["given"]

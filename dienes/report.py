@@ -580,7 +580,9 @@ TIER_NAMES_SHOWN = 12      # dienes named per tier in the try-first box
 def tier_lines(table: pd.DataFrame, model: dict, tiers: int = 2) -> list[tuple[int, list[str]]]:
     """[(tier, ['id (x butadiene)', ...]), ...] for the first `tiers` tiers."""
     out = []
-    ranked = table[table["rank"].notna() & table.get("tier", pd.Series(dtype=float)).notna()].sort_values("rank")
+    if "tier" not in table:
+        return out
+    ranked = table[table["rank"].notna() & table["tier"].notna()].sort_values("rank")
     for t in sorted(ranked["tier"].unique())[:tiers]:
         rows = ranked[ranked["tier"] == t]
         names = []

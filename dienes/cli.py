@@ -218,6 +218,8 @@ def _look_as_rank(args, dph_smiles: str) -> None:
     config = model["config"] | {"dienophile": dph_smiles}     # the run's settings, this dienophile
     if not Path(config["reference"]).is_absolute():
         config["reference"] = str(workdir / config["reference"])
+    print(f"\npricing it as `dienes rank` would, with that run's settings and results (a diene it has not "
+          "seen takes a minute or two at the refined level) ...", flush=True)
     with tempfile.TemporaryDirectory() as tmp:
         lib = Path(tmp) / "look.csv"
         pd.DataFrame({"id": ["look"], "smiles": [args.smiles]}).to_csv(lib, index=False)

@@ -150,6 +150,7 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     # conformers, the dienes' priced minima and the reference set (its own dienophile) are reused
     t0 = max(p.stat().st_mtime_ns for p in (tmp_path / "results").rglob("*.json"))
     n_priced_dienes = len(list((tmp_path / "results" / "refined").glob("*/structures/*.json")))
+    with_ma = {r["id"]: float(r["barrier_kJmol"]) for r in _ranking(tmp_path) if r["barrier_kJmol"]}
     run = _snakemake(tmp_path, "--config", "dienophile=C=CC#N")
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
@@ -159,6 +160,13 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     assert len(list((tmp_path / "results" / "refined").glob("*/structures/*.json"))) == n_priced_dienes
     model = json.loads((tmp_path / "results" / "model.json").read_text())
     assert model["run_dienophile"] == "C=CC#N" and model["note"]  # not the reference dienophile: said so
+    # ranking.csv carries the run's dienophile's barriers: acrylonitrile is a much weaker dienophile
+    # than maleic anhydride (common practice), so every diene's barrier rises, and every row says
+    # that its rate is a transfer from the reference dienophile
+    rows = _ranking(tmp_path)
+    with_an = {r["id"]: float(r["barrier_kJmol"]) for r in rows if r["barrier_kJmol"]}
+    assert set(with_an) == set(with_ma) and all(with_an[i] > with_ma[i] + 5.0 for i in with_ma)
+    assert all(r["dienophile"] == "C=CC#N" and r["dienophile_in_reference"] == "False" for r in rows if r["rank"])
 
 
 def test_the_quick_screen_is_labelled_as_the_fast_level(tmp_path):

@@ -239,8 +239,9 @@ def _look_as_rank(args, dph_smiles: str) -> None:
           + (f", x{times} butadiene" if times else "") + f"; level {r['level']}; in domain: {domain}")
     try:
         run = pd.read_csv(results / "ranking.csv")
-        above = int((run["log10_k_pred"] > r["log10_k_pred"]).sum())
-        print(f"  it would come {above + 1} of {int(run['rank'].notna().sum()) + 1} in that run's ranking")
+        # rows ahead of it by more than the printed precision (a tie, or the diene itself, is level)
+        above = int((run["log10_k_pred"] > r["log10_k_pred"] + 0.005).sum())
+        print(f"  {above} of that run's {int(run['rank'].notna().sum())} ranked rows are ahead of it")
     except (OSError, KeyError, ValueError):
         pass
     if r.get("message"):

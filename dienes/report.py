@@ -611,14 +611,34 @@ def _try_first(table: pd.DataFrame, model: dict) -> str:
     how = (f"Tiers: walking down the ranking, a new tier starts where a diene lies more than {width:.2f} log "
            "units (sqrt(2) x the leave-one-out error) below the first diene of its tier; within a tier the "
            "model cannot tell the dienes apart, so try them in any order." if width else "")
-    transfer = ("" if bench.get("dienophile_in_reference", True) else
+    transfer = (" The dienophile is the reference set's own: the rates are calibrated for it."
+                if bench.get("dienophile_in_reference", True) else
                 f" Your dienophile is not in the reference set: the order is computed with it, but every "
                 f"rate is transferred from {model.get('base_dienophile', 'the reference dienophile')}; "
                 "add two or three of your own measured pairs to the reference file to recalibrate.")
     return (f"<div class='tryfirst'><b>Which dienes first</b> (with {esc(model.get('run_dienophile', ''))}, "
             f"ranked at {esc(model.get('ranking_level', FAST_LEVEL))})<ol>{items}</ol>"
-            f"<div class='small'>{esc(accuracy_text(model))} {esc(time_text(model))} {esc(how)}{esc(transfer)}"
-            "</div></div>")
+            f"<div class='small'>{esc(accuracy_text(model))} {esc(time_text(model))} {esc(how)}{esc(transfer)} "
+            "<a href='#scope'>What this ranking covers and what it does not.</a></div></div>")
+
+
+SCOPE_TREATED = ("all-carbon conjugated dienes (open-chain, in rings, exocyclic, in aromatic rings such as "
+                 "furans, thiophenes, pyrroles and acenes) with one all-carbon C=C or C#C dienophile: one "
+                 "intermolecular [4+2] step, thermal and uncatalysed, ranked by its free-energy barrier")
+SCOPE_NOT = [
+    "hetero-dienes (1-aza- and 1-oxadienes, tetrazines): such a row becomes no_diene",
+    "hetero-dienophiles (C=O, N=N, N=O): refused before the run",
+    "Lewis-acid or organocatalysis, intramolecular reactions",
+    "what the flask does alongside: cyclopentadiene dimerising on standing, polymerisation, "
+    "retro-Diels-Alder at the reaction temperature, hydrolysis of amino or silyloxy dienes",
+    "a lot given as a mixture of E/Z isomers is scored as its fastest isomer (the message says so): "
+    "a lot that is mostly the slow isomer reacts more slowly than its rank",
+]
+
+
+def _scope() -> str:
+    return ("<h2 id='scope'>Scope</h2><p><b>Treated:</b> " + esc(SCOPE_TREATED) + ".</p><p><b>Not treated:</b></p>"
+            "<ul>" + "".join(f"<li>{esc(x)}</li>" for x in SCOPE_NOT) + "</ul>")
 
 
 FAST_LEVEL_LIMITS = [
@@ -705,6 +725,7 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
         f"dienes have a torsion profile: a ring-bound diene unit ({ring_ranked} ranked here) cannot turn "
         "about its C2–C3 bond without breaking the ring, so its s-cis geometry is set by the ring.</p></div></div>",
         _model_section(model, reference),
+        _scope(),
         _glossary(),
         "<h2>Run settings and software</h2><div class='grid'><div>", _kv(setting_rows), "</div><div>",
         _kv(sorted(versions.items())), "</div></div>",

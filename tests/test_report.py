@@ -98,7 +98,7 @@ def test_report_table_matches_ranking_csv(run_dir):
     shown = {}
     for row in re.findall(r"<tr class='[^']*' data-row='\d+'.*?</tr>", page, re.S):
         cells = re.findall(r"<td[^>]*?(?: data-sort='([^']*)')?>(.*?)</td>", re.sub(r"<svg.*?</svg>", "", row, flags=re.S), re.S)
-        rid = htmllib.unescape(re.sub(r"<div.*", "", cells[2][1], flags=re.S)).strip()
+        rid = htmllib.unescape(re.sub(r"<div.*", "", cells[3][1], flags=re.S)).strip()
         shown[rid] = cells
     table = _ranking(run_dir)
     ranked = [r for r in table if r["rank"]]
@@ -106,9 +106,11 @@ def test_report_table_matches_ranking_csv(run_dir):
     for r in ranked:
         cells = shown[r["id"]]
         assert int(float(cells[0][0])) == int(float(r["rank"])), r["id"]
-        assert float(cells[5][0]) == pytest.approx(float(r["log10_k_pred"]), abs=1e-3), r["id"]
-        assert cells[6][1] == r["level"], r["id"]
-        assert float(cells[7][1]) == pytest.approx(float(r["barrier_refined_kJmol"]), abs=0.06), r["id"]
+        assert int(float(cells[1][0])) == int(float(r["tier"])), r["id"]
+        assert float(cells[6][0]) == pytest.approx(float(r["log10_k_pred"]), abs=1e-3), r["id"]
+        assert float(cells[7][0]) == pytest.approx(float(r["times_faster_than_butadiene"]), rel=1e-4), r["id"]
+        assert cells[8][1] == r["level"], r["id"]
+        assert float(cells[9][1]) == pytest.approx(float(r["barrier_refined_kJmol"]), abs=0.06), r["id"]
 
 
 def test_report_in_a_real_browser(run_dir):
@@ -119,7 +121,21 @@ def test_report_in_a_real_browser(run_dir):
     from PIL import Image, ImageStat
     driver = _chrome()
     try:
+        driver.set_window_size(1280, 900)
         driver.get((run_dir / "results" / "report.html").as_uri())
+        # the first screen answers the chemist's question: which dienes first (tiers), how sure (the
+        # accuracy line), for which dienophile, and where the scope is stated; all inside the
+        # first window of a 1280 x 900 browser
+        first = driver.execute_script(
+            "var b=document.querySelector('.tryfirst'); if(!b) return null; var r=b.getBoundingClientRect();"
+            "return {bottom: r.bottom, height: window.innerHeight, text: b.innerText,"
+            " scope: Array.from(b.querySelectorAll('a')).map(a => a.getAttribute('href'))};")
+        assert first and first["bottom"] <= first["height"], first
+        assert "Try first" in first["text"] and "pairs of dienes" in first["text"]
+        assert "x" in first["text"] and "butadiene" in first["text"]          # multiples of butadiene's rate
+        assert "with O=C1OC(=O)C=C1" in first["text"] and "dienophile is the reference set's own" in first["text"]
+        assert "#scope" in first["scope"]
+        assert driver.execute_script("return document.getElementById('scope') !== null")
         rows = driver.execute_script("return document.querySelectorAll('#ranking tr[data-row]').length")
         assert rows == len(LIBRARY)
         sizes = driver.execute_script(
@@ -142,9 +158,9 @@ def test_report_in_a_real_browser(run_dir):
         driver.execute_script("var s=document.getElementById('f-status'); s.value='';"
                               "s.dispatchEvent(new Event('change'));")
         # sorting by the id column orders the rows by id
-        driver.execute_script("document.querySelectorAll('#ranking thead th')[2].click()")
+        driver.execute_script("document.querySelectorAll('#ranking thead th')[3].click()")
         ids = driver.execute_script(
-            "return Array.from(document.querySelectorAll('#ranking tbody tr')).map(r => r.cells[2].firstChild.textContent)")
+            "return Array.from(document.querySelectorAll('#ranking tbody tr')).map(r => r.cells[3].firstChild.textContent)")
         assert ids == sorted(ids)
         # the compact view hides the drawings
         driver.execute_script("var c=document.getElementById('f-compact'); c.click();")
@@ -218,4 +234,4 @@ def test_look_gives_the_answer_rank_gave(run_dir, capsys):
     row = next(r for r in _ranking(run_dir) if r["id"] == "R-2")
     assert f"log10 k {float(row['log10_k_pred']):+.2f} [{float(row['log10_k_low']):+.2f}, " in text
     assert f"level {row['level']}" in text and "in domain:" in text
-    assert f"it would come {int(row['rank'])} of " in text
+    assert f"  {int(row['rank']) - 1} of that run's " in text

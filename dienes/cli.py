@@ -215,7 +215,9 @@ def _look_as_rank(args, dph_smiles: str) -> None:
     if "config" not in model:
         print(f"\nno predicted log10 k: {results / 'model.json'} was written by an older version; rank again")
         return
-    config = model["config"] | {"dienophile": dph_smiles}     # the run's settings, this dienophile
+    # the run's settings; its dienophile unless another was asked for
+    dph_smiles = args.dienophile or model["config"]["dienophile"]
+    config = model["config"] | {"dienophile": dph_smiles}
     if not Path(config["reference"]).is_absolute():
         config["reference"] = str(workdir / config["reference"])
     print(f"\npricing it as `dienes rank` would, with that run's settings and results (a diene it has not "
@@ -224,7 +226,7 @@ def _look_as_rank(args, dph_smiles: str) -> None:
         lib = Path(tmp) / "look.csv"
         pd.DataFrame({"id": ["look"], "smiles": [args.smiles]}).to_csv(lib, index=False)
         config["library"] = str(lib)
-        table, _, summary = rank_in_process(cfg.validate(config), cache_dir=results,
+        table, _, _ = rank_in_process(cfg.validate(config), cache_dir=results,
                                             manifest_path=Path(tmp) / "manifest.json")
     r = table.iloc[0]
     print(f"\nas `dienes rank` answers (model of {results / 'model.json'}, dienophile {dph_smiles}):")

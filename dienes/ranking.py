@@ -446,9 +446,8 @@ YARDSTICK_SMILES = "C=CC=C"      # rates are also given as multiples of butadien
 
 
 def _canonical_or_none(smiles) -> str | None:
-    from rdkit import Chem
-    m = Chem.MolFromSmiles(str(smiles)) if isinstance(smiles, str) and smiles else None
-    return Chem.MolToSmiles(m) if m is not None else None
+    """`canonical` for a table cell that may be empty or not text."""
+    return canonical(smiles) if isinstance(smiles, str) and smiles else None
 
 
 def yardstick(table: pd.DataFrame, ref_table: pd.DataFrame, summary: dict,

@@ -18,9 +18,9 @@ Only the single points the ranking needs are computed:
   measurement on the demo: the gauche conformers GFN2-xTB puts 8-10 kJ/mol up
   lie 14-18 kJ/mol up at B3LYP/def2-SVP and weigh nothing in the ensemble;
   leaving out everything above 8 kJ/mol saved 27 of 104 single points and moved
-  no free-energy barrier by more than 0.46 kJ/mol (docs/validation.md). A minimum that is the mirror image of
-  one already priced (a gauche pair: same interatomic distances) takes its
-  twin's energy instead of a single point of its own. One result per
+  no free-energy barrier by more than 0.46 kJ/mol (docs/validation.md). A minimum
+  that is the mirror image of one already priced (a gauche pair: same interatomic
+  distances) takes its twin's energy instead of a single point of its own. One result per
   structure and level, shared by every dienophile.
 - the dienophile's minimum, once per run (one result per dienophile and level);
 - the transition structure of every reactive site whose GFN2-xTB barrier lies

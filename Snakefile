@@ -8,7 +8,7 @@ configfile: "config/config.yaml"
 include: "workflow/rules/common.smk"
 include: "workflow/rules/prepare.smk"
 include: "workflow/rules/compute.smk"
-include: "workflow/rules/refine.smk"
+include: "workflow/rules/levels.smk"
 include: "workflow/rules/rank.smk"
 
 

@@ -1,6 +1,6 @@
 """The `dienes` console command.
 
-    dienes rank LIBRARY [--dienophile SMILES] [--cores N] [--refine all|none|N] [--workdir DIR] [--set KEY=VALUE ...]
+    dienes rank LIBRARY [--dienophile SMILES] [--cores N] [--quick | --rows all|N] [--workdir DIR] [--set KEY=VALUE ...]
     dienes look SMILES [--dienophile SMILES] [--backend NAME] [--no-ts] [--no-profile]
 
 `rank` runs the Snakemake workflow for the everyday case and prints the top
@@ -27,7 +27,7 @@ BAR_WIDTH = 40
 RANK_EXAMPLES = """examples:
   dienes rank my_dienes.csv
   dienes rank my_dienes.csv --dienophile 'C=CC(=O)OC' --cores 8
-  dienes rank catalogue.sdf --refine none --workdir runs/quick-screen
+  dienes rank catalogue.sdf --quick --workdir runs/quick-screen
   dienes rank my_dienes.smi --set temperature_K=313.15 --set solvent=toluene
 
 Library: CSV with columns id and smiles (.csv/.tsv), .smi (SMILES then id) or .sdf.
@@ -84,8 +84,11 @@ def _rank(args) -> int:
         overrides.append(f"reference={REPO / 'config' / 'reference_rates.csv'}")
     if args.dienophile:
         overrides.append(f"dienophile={args.dienophile}")
-    if args.refine is not None:
-        overrides.append(f"refine={{rows: {args.refine}}}")
+    if args.quick or args.rows is not None:
+        from . import settings as cfg
+        shipped = cfg.load(configfile, fallback=False)
+        levels = [shipped.placing.name] if args.quick else list(shipped["ranking"]["levels"])
+        overrides.append(f"ranking={{levels: [{', '.join(levels)}], rows: {'all' if args.quick else args.rows}}}")
     overrides += args.set or []
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
@@ -111,10 +114,10 @@ def _rank(args) -> int:
     return 0
 
 
-def _refine_rows(text: str) -> str:
-    if text in ("all", "none") or (text.isdigit() and int(text) > 0):
+def _rows(text: str) -> str:
+    if text == "all" or (text.isdigit() and int(text) > 0):
         return text
-    raise argparse.ArgumentTypeError("give all, none or a positive number of rows")
+    raise argparse.ArgumentTypeError("give all or a positive number of rows")
 
 
 def text_profile(angles, energies) -> list[str]:
@@ -131,12 +134,15 @@ def _look(args) -> int:
     from .backends import Molecule
     from .library import Limits, check_dienophile, prepare_record
     from .orbitals import demand
-    from .pipeline import backend_settings, compute_dienophile, compute_structure
+    from .pipeline import compute_dienophile, compute_structure
     from .torsion import torsion_profile
-    config = cfg.load(REPO / "config" / "config.yaml")
+    settings = cfg.load(REPO / "config" / "config.yaml")
     if args.backend:
-        config["backend"] = args.backend
-    st = cfg.structure_settings(config)
+        placing = settings.placing.name
+        settings = settings.replace(levels=settings.as_config()["levels"] | {
+            placing: {"program": "xtb", "backend": args.backend}})
+    config = settings
+    st = settings.structure_settings()
     dph_smiles = args.dienophile or config["dienophile"]
     problem = check_dienophile(dph_smiles)
     if problem:
@@ -167,7 +173,7 @@ def _look(args) -> int:
                 best = s
         if res["status"] == "ok" and not args.no_ts:
             from .transition import transition_states_for_structure
-            ts = transition_states_for_structure(res, dph, backend_settings(st), config["transition_state"])
+            ts = transition_states_for_structure(res, dph, settings.backend_settings(), config["transition_state"])
             print(f"  transition structures with {dph['smiles']} ({ts.get('wall_time_s', 0):.0f} s; "
                   "GFN2-xTB barriers are far too low in value and serve for ordering):")
             for label, t in ts["sites"].items():
@@ -183,7 +189,7 @@ def _look(args) -> int:
         elif not args.no_profile:
             geo = res["geometry"]
             a, e = torsion_profile(geo["numbers"], np.asarray(geo["planar_s_cis_A"][best["label"]]),
-                                   Molecule(geo["numbers"], backend_settings(st)), best["atoms"],
+                                   Molecule(geo["numbers"], settings.backend_settings()), best["atoms"],
                                    step_deg=15.0)
             print(f"  relaxed torsion profile of site {best['label']} (0 deg = s-cis):")
             print("\n".join(text_profile(a, e)))
@@ -220,14 +226,14 @@ def _look_as_rank(args, dph_smiles: str) -> None:
     config = model["config"] | {"dienophile": dph_smiles}
     if not Path(config["reference"]).is_absolute():
         config["reference"] = str(workdir / config["reference"])
-    print(f"\npricing it as `dienes rank` would, with that run's settings and results (a diene it has not "
-          "seen takes a minute or two at the refined level) ...", flush=True)
+    print("\ncomputing it as `dienes rank` would, with that run's settings and results (a diene it has not "
+          "seen takes a minute or two at the density-functional level) ...", flush=True)
     with tempfile.TemporaryDirectory() as tmp:
         lib = Path(tmp) / "look.csv"
         pd.DataFrame({"id": ["look"], "smiles": [args.smiles]}).to_csv(lib, index=False)
         config["library"] = str(lib)
-        table, _, _ = rank_in_process(cfg.validate(config), cache_dir=results,
-                                            manifest_path=Path(tmp) / "manifest.json")
+        table, _, _ = rank_in_process(cfg.resolve(config, fallback=False), cache_dir=results,
+                                      manifest_path=Path(tmp) / "manifest.json")
     r = table.iloc[0]
     print(f"\nas `dienes rank` answers (model of {results / 'model.json'}, dienophile {dph_smiles}):")
     if pd.isna(r["rank"]):
@@ -266,11 +272,14 @@ def main(argv=None) -> int:
     r.add_argument("--dienophile", metavar="SMILES", help="dienophile SMILES (C=C or C#C; default: the config's, maleic anhydride)")
     cores = os.cpu_count() or 1
     r.add_argument("--cores", type=int, default=cores, help=f"CPU cores to use (default: all, {cores} here)")
-    r.add_argument("--refine", type=_refine_rows, metavar="all|none|N",
-                   help="which dienes are priced at the refined (density-functional) level: all, none "
-                        "(a quick GFN2-xTB screen, labelled so) or the N best by GFN2-xTB (risky: GFN2-xTB "
-                        "misorders the top); about a minute per diene on one core (default: the config's "
-                        "refine.rows, all)")
+    how = r.add_mutually_exclusive_group()
+    how.add_argument("--quick", action="store_true",
+                     help="a quick GFN2-xTB screen: rank without the density-functional single points (about a "
+                          "sixth of the time; GFN2-xTB misorders the top, the output says so) (default: off)")
+    how.add_argument("--rows", type=_rows, metavar="all|N",
+                     help="which dienes are recomputed at the density-functional level: all, or only the N best by "
+                          "GFN2-xTB (risky: GFN2-xTB misorders the top); about a minute per diene on one core "
+                          "(default: the config's ranking.rows, all)")
     r.add_argument("--workdir", default=".", help="where results/ and logs/ go (default: the current directory)")
     r.add_argument("--set", action="append", metavar="KEY=VALUE",
                    help="any other config value, e.g. temperature_K=313.15 (repeatable; default: none)")

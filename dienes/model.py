@@ -32,8 +32,7 @@ from .units import log10_units_per_kjmol
 
 PENALTY = "scis_penalty_kJmol"
 # energy descriptors whose slope transition-state theory fixes at -1/(RT ln 10)
-PHYSICAL_SLOPE_FEATURES = ("barrier_kJmol", "barrier_refined_kJmol", "scis_penalty_kJmol",
-                           "scis_penalty_refined_kJmol")
+PHYSICAL_SLOPE_FEATURES = ("barrier_kJmol", "scis_penalty_kJmol")
 VARIANTS = ("ols", "ridge", "physics")
 RIDGE_ALPHA = 1.0
 MIN_GAIN = 0.05          # a candidate joins only if it lowers the LOO RMSE by 5 % or more

@@ -4,6 +4,7 @@ results/model.json, and a short summary on the console."""
 from __future__ import annotations
 
 import csv
+from collections.abc import Mapping
 import json
 import math
 from collections import Counter
@@ -11,6 +12,9 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+
+from .layout import write_atomic, write_text
+from .ranking import ranking_model
 
 FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
 
@@ -31,13 +35,11 @@ def write_table(df: pd.DataFrame, path) -> None:
         if not (pd.api.types.is_numeric_dtype(safe[col]) or pd.api.types.is_bool_dtype(safe[col])):
             safe[col] = safe[col].astype(object).map(neutralise_cell)
     safe.columns = [neutralise_cell(str(c)) for c in safe.columns]
-    tmp = path.with_name(f".{path.name}.tmp")
-    safe.to_csv(tmp, index=False, quoting=csv.QUOTE_MINIMAL, float_format="%.6g")
-    tmp.replace(path)
+    write_atomic(path, lambda tmp: safe.to_csv(tmp, index=False, quoting=csv.QUOTE_MINIMAL, float_format="%.6g"))
 
 
 def _clean(obj):
-    if isinstance(obj, dict):
+    if isinstance(obj, Mapping):
         return {str(k): _clean(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
         return [_clean(v) for v in obj]
@@ -51,9 +53,7 @@ def _clean(obj):
 
 
 def write_model(summary: dict, path) -> None:
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(json.dumps(_clean(summary), indent=1) + "\n")
+    write_text(path, json.dumps(_clean(summary), indent=1) + "\n")
 
 
 def read_table(path) -> pd.DataFrame:
@@ -75,32 +75,29 @@ def is_true(value) -> bool:
     return str(value) in ("True", "true", "1", "1.0")
 
 
-FAST_LEVEL = "GFN2-xTB"
-
-
-def level_barrier(row) -> float:
-    """A ranking row's barrier (kJ/mol) at the level its rank comes from."""
-    refined = str(row.get("level", FAST_LEVEL)) not in ("", FAST_LEVEL, "nan")
-    return row["barrier_refined_kJmol"] if refined else row["barrier_kJmol"]
-
-
 def scale_text(summary: dict) -> str:
     """On which reference scale the numbers sit."""
+    model = ranking_model(summary)
     run = summary.get("run_dienophile", "")
-    same = summary.get("note", "") == ""
+    same = model.get("note", "") == ""
     return (f"log10 k relative to 1,3-butadiene, scale set by the reference kinetics with "
-            f"{summary.get('base_dienophile', '')}" + ("" if same else f" (the run's dienophile {run} is not among them)"))
+            f"{model.get('base_dienophile', '')}" + ("" if same else f" (the run's dienophile {run} is not among them)"))
 
 
 def level_text(summary: dict) -> str:
-    """At which level the barriers the ranking rests on were priced."""
-    level = summary.get("ranking_level", summary.get("level", FAST_LEVEL))
-    if level == FAST_LEVEL:
-        return ("barriers at the GFN2-xTB level only: a quick screen (GFN2-xTB over-rewards alkyl groups "
-                "and large flat dienes; rank with refine.rows: all before trusting the top)")
-    kind = ("free-energy barriers (GFN2-xTB thermal corrections)" if summary.get("barrier_kind") == "free_energy"
+    """At which level the barriers the ranking rests on were computed."""
+    model = ranking_model(summary)
+    if not model:
+        return "no level's model could be fitted (see model.json)"
+    name, levels = summary["ranking_level"], summary.get("ranking_levels", [])
+    after = [lv for lv in levels[levels.index(name) + 1:]] if name in levels else []
+    kind = ("free-energy barriers (GFN2-xTB thermal corrections)" if model.get("barrier_kind") == "free_energy"
             else "electronic barriers")
-    return f"{kind} priced at {level} on GFN2-xTB structures (rows marked * fell back to GFN2-xTB)"
+    if model.get("level") == "GFN2-xTB":
+        return ("barriers at the GFN2-xTB level only: a quick screen (GFN2-xTB over-rewards alkyl groups "
+                "and large flat dienes; rank at a density-functional level before trusting the top)")
+    return (f"{kind} at {name} ({model.get('level')}) on GFN2-xTB structures"
+            + (f" (rows marked * are ranked at {', '.join(after)}: their {name} value failed)" if after else ""))
 
 
 def scale_line(summary: dict) -> str:
@@ -180,27 +177,29 @@ def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, t
             lines.append(time_text(summary))
         if summary and not summary.get("bench", {}).get("dienophile_in_reference", True):
             lines.append("the dienophile is not in the reference set: rates are transferred from "
-                         f"{summary.get('base_dienophile', 'the reference dienophile')} (see domain_note)")
+                         f"{ranking_model(summary).get('base_dienophile', 'the reference dienophile')} "
+                         "(see domain_note)")
     ranked = ranking[ranking["rank"].notna()].sort_values("rank").head(top)
-    main_level = summary.get("ranking_level", FAST_LEVEL)
+    main_level = summary.get("ranking_level") or ""
     if len(ranked):
         label = interval_label(summary.get("interval", 0.9))
-        lines.append(f"top {len(ranked)} (predicted log10 k [{label} interval]; barrier at {main_level}; "
-                     "s-cis penalty at GFN2-xTB; ! = extrapolation, not backed by the reference set):")
+        lines.append(f"top {len(ranked)} (predicted log10 k [{label} interval]; barrier at the row's level, "
+                     f"{main_level} unless marked *; s-cis penalty at GFN2-xTB; ! = extrapolation, not backed "
+                     "by the reference set):")
         for _, r in ranked.iterrows():
             flag = " " if is_true(r["in_domain"]) else "!"
-            fell_back = "*" if main_level != FAST_LEVEL and str(r.get("level")) == FAST_LEVEL else " "
-            lines.append(f" {flag}{int(r['rank']):>3}{fell_back} {str(r['id'])[:24]:<24} {r['log10_k_pred']:+6.2f} "
+            other = "*" if str(r.get("level")) != main_level else " "
+            lines.append(f" {flag}{int(r['rank']):>3}{other} {str(r['id'])[:24]:<24} {r['log10_k_pred']:+6.2f} "
                          f"[{r['log10_k_low']:+.2f}, {r['log10_k_high']:+.2f}]  "
-                         f"barrier {level_barrier(r):6.1f} kJ/mol  penalty {r['scis_penalty_kJmol']:5.1f} kJ/mol")
+                         f"barrier {float(r['barrier_kJmol']):6.1f} kJ/mol  "
+                         f"penalty {r['scis_penalty_kJmol']:5.1f} kJ/mol")
         n_out = int((~ranking.loc[ranking["rank"].notna(), "in_domain"].map(is_true)).sum())
         if n_out:
             lines.append(f"{n_out} ranked row(s) are extrapolations: see in_domain and domain_note in ranking.csv")
-        if main_level != FAST_LEVEL:
-            n_fast = int((ranking.loc[ranking["rank"].notna(), "level"] == FAST_LEVEL).sum())
-            if n_fast:
-                lines.append(f"{n_fast} ranked row(s) are ranked at GFN2-xTB (their refinement failed or was "
-                             "not asked for): see level and message in ranking.csv")
+        n_other = int((ranking.loc[ranking["rank"].notna(), "level"].astype(str) != main_level).sum())
+        if n_other:
+            lines.append(f"{n_other} ranked row(s) are ranked at a later level of ranking.levels (their {main_level} "
+                         "value failed or was not computed): see level and message in ranking.csv")
     out = Path(out_dir)
     lines.append(f"outputs: {out / 'ranking.csv'} (table), {out / 'report.html'} (report), "
                  f"{out / 'dienes.sdf'} (3D structures), {out / 'sites.csv'}, {out / 'model.json'}")
@@ -218,17 +217,12 @@ def _ts_geometry(computed, row):
     return (site["positions_A"], ts.get("numbers")) if site.get("positions_A") else None
 
 
-def write_sdf(table: pd.DataFrame, computed, path) -> int:
-    """3D structures of every ranked diene: its planar s-cis conformer (best site), its
-    global minimum and its transition structure with the dienophile, with properties.
-    Returns the number of records written."""
+def _sdf_records(table: pd.DataFrame, computed, settings):
+    """(name, molecule with 3D coordinates, properties) of every record dienes.sdf holds."""
     from rdkit import Chem
     from rdkit.Geometry import Point3D
     results = computed.structures if hasattr(computed, "structures") else computed
-    path = Path(path)
-    tmp = path.with_name(f".{path.name}.tmp")
-    writer = Chem.SDWriter(str(tmp))
-    n = 0
+    levels = [lv.name for lv in settings.ranking_levels]
     for _, r in table[table["rank"].notna()].sort_values("rank").iterrows():
         res = results.get(r["structure_key"], {})
         geo = res.get("geometry")
@@ -247,6 +241,17 @@ def write_sdf(table: pd.DataFrame, computed, path) -> int:
             if [a.GetAtomicNum() for a in pair.GetAtoms()] == list(ts[1] or []):
                 entries.append(("transition structure", pair, ts[0]))
         domain = "yes" if is_true(r["in_domain"]) else "no (extrapolation)"
+        tag = "" if is_true(r["in_domain"]) else " [extrapolation]"
+        props = {"id": r["id"], "row": int(r["row"]), "status": r["status"],
+                 "rank": int(r["rank"]), "in_domain": domain, "domain_note": r.get("domain_note", ""),
+                 "smiles": r["smiles"], "isomer_smiles": r["isomer_smiles"],
+                 "diene_site": r["best_site"], "dienophile": r.get("dienophile", ""),
+                 "level": r["level"], "level_method": r.get("level_method", ""),
+                 "barrier_kJmol": r["barrier_kJmol"], "barrier_kind": r.get("barrier_kind", ""),
+                 "log10_k_pred": r["log10_k_pred"]}
+        props |= {f"{lv}_barrier_kJmol": r.get(f"{lv}_barrier_kJmol", "") for lv in levels}
+        props |= {"scis_penalty_kJmol": r["scis_penalty_kJmol"], "homo_eV": r["homo_eV"], "lumo_eV": r["lumo_eV"],
+                  "seed": res.get("seed", "")}
         for label, base, coords in entries:
             if coords is None:
                 continue
@@ -256,22 +261,27 @@ def write_sdf(table: pd.DataFrame, computed, path) -> int:
                 conf.SetAtomPosition(i, Point3D(x, y, z))
             m.RemoveAllConformers()
             m.AddConformer(conf, assignId=True)
-            tag = "" if is_true(r["in_domain"]) else " [extrapolation]"
-            m.SetProp("_Name", _sdf_text(f"{r['id']} {label} (GFN2-xTB geometry; ranked at {r['level']}){tag}"))
-            props = {"id": r["id"], "row": int(r["row"]), "conformer": label, "status": r["status"],
-                     "rank": int(r["rank"]), "in_domain": domain, "domain_note": r.get("domain_note", ""),
-                     "smiles": r["smiles"], "isomer_smiles": r["isomer_smiles"],
-                     "diene_site": r["best_site"], "dienophile": r.get("dienophile", ""),
-                     "level": r["level"], "barrier_at_level_kJmol": level_barrier(r),
-                     "barrier_gfn2_xtb_kJmol": r["barrier_kJmol"],
-                     "scis_penalty_gfn2_xtb_kJmol": r["scis_penalty_kJmol"],
-                     "homo_gfn2_xtb_eV": r["homo_eV"], "lumo_gfn2_xtb_eV": r["lumo_eV"],
-                     "log10_k_pred": r["log10_k_pred"],
-                     "seed": res.get("seed", "")}
+            yield (f"{r['id']} {label} (GFN2-xTB geometry; ranked at {r['level']}){tag}", m,
+                   {"conformer": label} | props)
+
+
+def write_sdf(table: pd.DataFrame, computed, settings, path) -> int:
+    """3D structures of every ranked diene: its planar s-cis conformer (best site), its
+    global minimum and its transition structure with the dienophile, with properties
+    (barrier_kJmol at the row's level; HOMO, LUMO and s-cis penalty at GFN2-xTB).
+    Returns the number of records written."""
+    from rdkit import Chem
+    written = []
+
+    def write(tmp):
+        writer = Chem.SDWriter(str(tmp))
+        for name, m, props in _sdf_records(table, computed, settings):
+            m.SetProp("_Name", _sdf_text(name))
             for k, v in props.items():
                 m.SetProp(k, _sdf_text(v))
             writer.write(m)
-            n += 1
-    writer.close()
-    tmp.replace(path)
-    return n
+            written.append(name)
+        writer.close()
+
+    write_atomic(path, write)
+    return len(written)

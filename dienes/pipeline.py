@@ -4,18 +4,15 @@ here knows about the library row it came from."""
 
 from __future__ import annotations
 
-import json
-import os
 import platform
-import tempfile
 import time
-from pathlib import Path
 
 import numpy as np
 from rdkit import Chem, rdBase
 
 from . import __version__
 from .backends import BackendError, Molecule, Settings as BackendSettings, atom_orbital_weights
+from .layout import read_json, write_json  # noqa: F401 - the one way a result is written
 from .conformers import ConformerError, ConformerSettings, embed, positions, prune, relax
 from .optimize import backend_energy_forces, optimize
 from .orbitals import site_frontier
@@ -172,28 +169,3 @@ def compute_dienophile(smiles: str, settings: dict) -> dict:
             "converged": r.converged, "n_gradients": backend.n_calls, "seed": settings["seed"],
             "settings": settings, "versions": software_versions()}
 
-
-_UMASK = os.umask(0)
-os.umask(_UMASK)
-
-
-def write_json(obj: dict, path) -> None:
-    """Write atomically: a killed job never leaves a half-written result behind."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    os.chmod(tmp, 0o666 & ~_UMASK)  # readable like any other file the user writes (mkstemp makes 0600)
-    try:
-        with os.fdopen(fd, "w") as fh:
-            json.dump(obj, fh, indent=1, sort_keys=False, allow_nan=False)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
-def read_json(path) -> dict:
-    with open(path) as fh:
-        return json.load(fh)

@@ -19,36 +19,37 @@ import pandas as pd
 from . import model as mdl
 from .orbitals import regio_hint
 
-TS_COLUMNS = ("barrier_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
-              "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
-              "model_barrier_kJmol", "ts_imag_cm1", "face_gap_kJmol", "orientation_gap_kJmol")
+TS_COLUMNS = ("intrinsic_barrier_kJmol", "distortion_kJmol", "dienophile_distortion_kJmol", "interaction_kJmol",
+              "reaction_energy_kJmol", "model_barrier_kJmol", "ts_imag_cm1", "face_gap_kJmol",
+              "orientation_gap_kJmol")
 RANKED_STATUSES = ("ok", "ts_unverified")
-REFINED_COLUMNS = ("barrier_refined_kJmol", "electronic_barrier_refined_kJmol", "contact_dispersion_kJmol")
-# the refined barrier the model uses, by the config's refine.barrier
-BARRIER_KINDS = {"free_energy": "free_energy_barrier_kJmol", "electronic": "electronic_barrier_kJmol"}
-FAST_LEVEL = "GFN2-xTB"
-# the chosen level's prediction columns, each from its per-level column (see level_column)
+# what a level gives each site, as <level>_<name> in the sites table
+LEVEL_SITE_COLUMNS = ("barrier_kJmol", "electronic_barrier_kJmol", "status", "message")
+# a level's prediction for a site, as <level>_<name>
 PREDICTION_COLUMNS = ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage", "in_domain", "domain_note")
+# what ranks a row, unprefixed: the values of the level named in its `level` column
+ROW_LEVEL_COLUMNS = PREDICTION_COLUMNS + ("barrier_kJmol", "electronic_barrier_kJmol")
+# each ranking level's view of a row, as <level>_<name> in ranking.csv
+LEVEL_VIEW_COLUMNS = ("rank", "log10_k_pred", "log10_k_low", "log10_k_high", "in_domain", "barrier_kJmol",
+                      "electronic_barrier_kJmol", "status", "message")
+BARRIER_KEYS = {"free_energy": "free_energy_barrier_kJmol", "electronic": "electronic_barrier_kJmol"}
 
 
-def level_column(name: str, tag: str) -> str:
-    """Per-level name of a prediction column: log10_k_pred -> log10_k_<tag>,
-    log10_k_low -> log10_k_<tag>_low, in_domain -> in_domain_<tag>."""
-    if name.startswith("log10_k"):
-        return "log10_k_" + tag + name[len("log10_k"):].replace("_pred", "")
-    return f"{name}_{tag}"
+def col(level, name: str) -> str:
+    """A level's column: col(dft, 'barrier_kJmol') -> 'dft_barrier_kJmol'."""
+    return f"{getattr(level, 'name', level)}_{name}"
 
 
 @dataclass
 class Computed:
     """Everything computed for a run, by file stem: structures by key, transition
-    structures by '<key>__<transition hash>', dienophiles by their hash."""
+    structures by '<key>__<transition hash>', dienophiles by their hash, and each priced
+    level's pair results by level name and stem."""
 
     structures: dict
     transitions: dict = field(default_factory=dict)
     dienophiles: dict = field(default_factory=dict)
-    refined: dict = field(default_factory=dict)
-    barrier: str = "free_energy"        # which refined barrier the model uses (refine.barrier)
+    levels: dict = field(default_factory=dict)
 
     def transition(self, key: str, thash: str) -> dict:
         return self.transitions.get(f"{key}__{thash}", {"status": "missing", "sites": {}})
@@ -103,37 +104,57 @@ def site_features(site: dict, dienophile: dict, ts_site: dict | None, smiles: st
     return out
 
 
-def refined_features(refined: dict | None, label: str, barrier: str = "free_energy") -> dict:
-    """The refined-level barrier of a site (`barrier`: free_energy or electronic; NaN where
-    the site was not priced), the level's name, and why not where it was not."""
-    out = {c: float("nan") for c in REFINED_COLUMNS}
-    out.update(refine_status="", refine_message="", refined_level="")
-    if refined is None:
+def level_features(level, result: dict | None, label: str) -> dict:
+    """A site's barrier (kJ/mol) at one level, with its status and why where there is none.
+    `result` is the pair's transition-structure result for the level that places the atoms,
+    its single-point result for any other level, None where that level did not compute the pair.
+    Returns {<level>_barrier_kJmol, <level>_electronic_barrier_kJmol, <level>_status,
+    <level>_message} and, where the level measured it, contact_dispersion_kJmol."""
+    out = {col(level, "barrier_kJmol"): float("nan"), col(level, "electronic_barrier_kJmol"): float("nan"),
+           col(level, "status"): "", col(level, "message"): ""}
+
+    def say(status, message):
+        out.update({col(level, "status"): status, col(level, "message"): message})
         return out
-    out["refined_level"] = refined.get("level", "")
-    site = refined.get("sites", {}).get(label)
+
+    if result is None:
+        return say("not_computed", "not computed at this level")
+    site = result.get("sites", {}).get(label)
+    if level.places_atoms:
+        site = site or {"status": result.get("status", "missing"), "message": result.get("message", "")}
+        value = site.get("barrier_kJmol")
+        if isinstance(value, (int, float)) and math.isfinite(value):
+            out[col(level, "barrier_kJmol")] = out[col(level, "electronic_barrier_kJmol")] = float(value)
+        return say(site.get("status", "missing"), site.get("message", ""))
     if site is None:
-        failed = refined.get("status") != "ok"
-        out["refine_status"] = refined.get("status", "missing") if failed else "not_priced"
-        out["refine_message"] = (refined.get("message", "") if failed else
-                                 "site not priced: its GFN2-xTB barrier lies well above the best site's")
-    elif site.get("status") != "ok":
-        out.update(refine_status=site.get("status", ""), refine_message=site.get("message", ""))
-    elif BARRIER_KINDS[barrier] not in site:
-        out.update(refine_status="no_thermal", refine_message="no thermal correction was priced for this site")
-    else:
-        out.update(barrier_refined_kJmol=float(site[BARRIER_KINDS[barrier]]),
-                   electronic_barrier_refined_kJmol=float(site["electronic_barrier_kJmol"]),
-                   contact_dispersion_kJmol=float(site["contact_dispersion_kJmol"]), refine_status="ok")
-    return out
+        if result.get("status") != "ok":
+            return say(result.get("status", "missing"), result.get("message", ""))
+        return say("not_priced", "site not computed: its GFN2-xTB barrier lies well above the best site's")
+    if site.get("status") != "ok":
+        return say(site.get("status", ""), site.get("message", ""))
+    if BARRIER_KEYS[level.barrier] not in site:
+        return say("no_thermal", "no thermal correction was computed for this site")
+    out[col(level, "barrier_kJmol")] = float(site[BARRIER_KEYS[level.barrier]])
+    out[col(level, "electronic_barrier_kJmol")] = float(site["electronic_barrier_kJmol"])
+    if site.get("contact_dispersion_kJmol") is not None:
+        out["contact_dispersion_kJmol"] = float(site["contact_dispersion_kJmol"])
+    return say("ok", "")
 
 
 def _usable_sites(result: dict) -> list[dict]:
     return [s for s in result.get("sites", []) if s["status"] == "ok"]
 
 
-def record_sites(rec: dict, computed: Computed) -> list[dict]:
-    """Feature rows of every computed site of every isomer of one record."""
+def _levels_computed(settings) -> list:
+    """The ranking levels, and the one that places the atoms (its barrier picks a reference
+    diene's site) where ranking.levels leaves it out."""
+    levels = list(settings.ranking_levels)
+    return levels + ([settings.placing] if not any(lv.places_atoms for lv in levels) else [])
+
+
+def record_sites(rec: dict, computed: Computed, settings) -> list[dict]:
+    """Feature rows of every computed site of every isomer of one record, with each
+    ranking level's barrier."""
     dph = computed.dienophiles.get(rec["dienophile"]["dhash"])
     rows = []
     for iso in rec["isomers"]:
@@ -149,8 +170,13 @@ def record_sites(rec: dict, computed: Computed) -> list[dict]:
             if site["status"] == "ok" and dph is not None:
                 row.update(site_features(site, dph, ts.get("sites", {}).get(site["label"]), iso["smiles"]))
                 row["regio_hint"] = site_regio_hint(site, dph, row["demand"])
-                row.update(refined_features(computed.refined.get(row["transition_key"]), site["label"],
-                                            computed.barrier))
+                for level in _levels_computed(settings):
+                    result = (ts if level.places_atoms
+                              else computed.levels.get(level.name, {}).get(row["transition_key"]))
+                    feats = level_features(level, result, site["label"])
+                    if "contact_dispersion_kJmol" in row:
+                        feats.pop("contact_dispersion_kJmol", None)
+                    row.update(feats)
             else:
                 row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
                             "lumo_eV": site["lumo_eV"], "ts_status": "not_computed"})
@@ -158,12 +184,12 @@ def record_sites(rec: dict, computed: Computed) -> list[dict]:
     return rows
 
 
-def site_table(records: list[dict], computed: Computed) -> pd.DataFrame:
+def site_table(records: list[dict], computed: Computed, settings) -> pd.DataFrame:
     """One row per (input row, isomer, site) that was computed."""
     rows = []
     for rec in records:
         if rec["status"] == "ok":
-            rows += record_sites(rec, computed)
+            rows += record_sites(rec, computed, settings)
     return pd.DataFrame(rows)
 
 
@@ -172,19 +198,22 @@ def site_class(kind: str, aromatic) -> str:
     return f"{kind}{' aromatic' if bool(aromatic) else ''}"
 
 
-def _fit_site(sites: list[dict]) -> dict | None:
-    """The site a reference diene is fitted with: the lowest verified barrier."""
+def _fit_site(sites: list[dict], placing) -> dict | None:
+    """The site a reference diene is fitted with, at every level: the lowest verified
+    barrier of the level that places the atoms."""
+    barrier = col(placing, "barrier_kJmol")
     ok = [s for s in sites if s.get("site_status") == "ok" and s.get("ts_verified")
-          and np.isfinite(s.get("barrier_kJmol", np.nan))]
-    return min(ok, key=lambda s: s["barrier_kJmol"]) if ok else None
+          and np.isfinite(s.get(barrier, np.nan))]
+    return min(ok, key=lambda s: s[barrier]) if ok else None
 
 
-def reference_rows(reference: list[dict], computed: Computed) -> pd.DataFrame:
-    """One row per reference record with its fitted site's features (or why not)."""
+def reference_rows(reference: list[dict], computed: Computed, settings) -> pd.DataFrame:
+    """One row per reference record with its fitted site's features at every ranking level
+    (or why it cannot be used)."""
     rows = []
     seen: dict[tuple, str] = {}      # (structure key, dienophile) -> id of the row that measured it
     for rec in reference:
-        row = {"id": rec["id"], "smiles": rec["smiles"], "used": False, "reason": ""}
+        row = {"id": rec["id"], "smiles": rec["smiles"], "usable": False, "reason": ""}
         pair = (tuple(i["key"] for i in rec["isomers"]), canonical(rec["dienophile"]["smiles"]))
         try:
             row["log10_k"] = float(rec["extra"].get("log10_k", "nan"))
@@ -201,37 +230,52 @@ def reference_rows(reference: list[dict], computed: Computed) -> pd.DataFrame:
             # the same measurement twice would weigh one pair double in the fit
             row["reason"] = f"same diene and dienophile as reference row {seen[pair]}: counted once"
         else:
-            site = _fit_site(record_sites(rec, computed))
+            site = _fit_site(record_sites(rec, computed, settings), settings.placing)
             if site is None:
                 res = computed.structures.get(rec["isomers"][0]["key"], {})
                 row["reason"] = (f"structure {res.get('status', 'missing')}: {res.get('message', '')}"
                                  if res.get("status") != "ok" else "no verified transition structure")
             else:
                 row.update({k: v for k, v in site.items() if k not in ("row", "id")})
-                row["used"] = True
+                row["usable"] = True
                 seen[pair] = rec["id"]
         rows.append(row)
     return pd.DataFrame(rows)
 
 
-def fit_reference(reference: list[dict], computed: Computed, config: dict, run_dienophile: str,
-                  suffix: str = ""):
-    """Fit the model on the reference records. `suffix` ('' or '_refined') picks the
-    level of the energy features. Returns (fit, summary dict, reference table)."""
-    table = reference_rows(reference, computed)
-    level = lambda f: f.replace("_kJmol", f"{suffix}_kJmol") if suffix and f.endswith("_kJmol") else f  # noqa: E731
-    base = [level(f) for f in config["model"]["features"]]
-    candidates = [level(f) for f in config["model"].get("candidates", [])]
+def at_level(table: pd.DataFrame, level) -> pd.DataFrame:
+    """A sites or reference table as one level's model sees it: barrier_kJmol and
+    electronic_barrier_kJmol are that level's; every other descriptor is as computed."""
+    out = table.copy()
+    for name in ("barrier_kJmol", "electronic_barrier_kJmol"):
+        out[name] = out[col(level, name)] if col(level, name) in out else np.nan
+    return out
+
+
+def fit_reference(ref_table: pd.DataFrame, settings, level):
+    """Fit the model at `level` on the reference table (see reference_rows): its barrier and
+    every other candidate descriptor. Returns (fit, summary dict, the level's reference
+    columns: <level>_used, <level>_reason, <level>_log10_k_cv, <level>_log10_k_fit, ...)."""
+    table = at_level(ref_table, level)
+    table["used"], table["level_reason"] = table["usable"], table["reason"]
+    model = settings["model"]
+    base = list(model["features"])
+    candidates = list(model.get("candidates", []))
     for f in base + candidates:
         if f not in table:
             table[f] = np.nan
     usable = table["used"] & table[base].notna().all(axis=1)
-    table.loc[table["used"] & ~usable, "reason"] = "no value for a model feature"
+    missing = table["used"] & ~usable
+    table.loc[missing, "level_reason"] = [
+        f"no {level.name} value for a model feature" + (f" ({st}: {msg})" if st else "")
+        for st, msg in zip(table.loc[missing].get(col(level, "status"), ""),
+                           table.loc[missing].get(col(level, "message"), ""))]
     table["used"] = usable
     used = table[table["used"]].copy()
     if len(used) < len(base) + 3:
-        raise ValueError(f"only {len(used)} usable reference dienes; the model needs at least "
+        raise ValueError(f"only {len(used)} usable reference dienes at {level.name}; the model needs at least "
                          f"{len(base) + 3} (see results/reference_fit.csv for the reasons)")
+    run_dienophile = settings["dienophile"]
     used["dienophile_canonical"] = used["dienophile_smiles"].map(canonical)
     counts = used["dienophile_canonical"].value_counts()
     run_canonical = canonical(run_dienophile)
@@ -247,22 +291,18 @@ def fit_reference(reference: list[dict], computed: Computed, config: dict, run_d
     y = used["log10_k"].to_numpy(float)
     T_ref = float(used.loc[used["dienophile_canonical"] == base_dph, "temperature_K"].median())
     cands = [c for c in candidates if c in columns]
-    max_added = int(config["model"].get("max_added", 0))
+    max_added = int(model.get("max_added", 0))
     features, trail = mdl.choose_features(columns, y, base + term_names, cands, T_ref, max_added)
     X = np.column_stack([columns[f] for f in features])
     fit, comparison, y_cv = mdl.select(X, y, features, T_ref)
     honest = mdl.nested_cv(columns, y, base + term_names, cands, T_ref, max_added) if cands and max_added \
         else None
-    table["in_training_set"] = table["used"]
     table.loc[used.index, "log10_k_cv"] = y_cv
     table.loc[used.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
     ols = mdl.fit(X, y, features, "ols", T_ref)
     physical = -mdl.log10_units_per_kjmol(T_ref)
-    level_name = "GFN2-xTB"
-    if suffix:
-        names = used.get("refined_level", pd.Series(dtype=object)).dropna()
-        level_name = str(names.iloc[0]) if len(names) else "refined"
-    summary = {"level": level_name, "n_reference": int(len(used)),
+    summary = {"name": level.name, "level": level.label(), "barrier_kind": level.barrier,
+               "n_reference": int(len(used)),
                "features": features, "base_features": base, "candidates": cands, "selection": trail,
                "dienophile_terms": dict(zip(term_names, terms)), "base_dienophile": base_dph,
                "run_dienophile": run_dienophile,
@@ -274,45 +314,48 @@ def fit_reference(reference: list[dict], computed: Computed, config: dict, run_d
                "reference_temperature_K": T_ref, "physical_slope_per_kJmol": physical,
                "ols_coefficients": dict(zip(features, ols.coef_per_unit)),
                "ols_coefficient_se": dict(zip(features, ols.coef_se)),
-               "interval": config["model"]["interval"], "note": note,
+               "interval": model["interval"], "note": note,
                "training_classes": sorted({site_class(k, a) for k, a in
                                            zip(used["site_kind"], used["aromatic"])})}
     if honest is not None:
         summary["nested_cv"] = {k: v for k, v in honest.items() if k != "predictions"}
         table.loc[used.index, "log10_k_nested_cv"] = honest["predictions"]
-    return fit, summary, table
+    keep = ["used", "level_reason", "log10_k_cv", "log10_k_fit", "log10_k_nested_cv"]
+    view = table[[c for c in keep if c in table]].rename(columns={"level_reason": "reason"})
+    return fit, summary, view.add_prefix(f"{level.name}_")
 
 
-def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict, tag: str) -> pd.DataFrame:
-    """Predictions per site for the run's dienophile, with the applicability domain:
-    every model descriptor within the reference set's span and leverage, the site's
-    class (kind, aromatic or not) in the reference set, and a verified saddle.
-    Columns carry the level's tag: log10_k_<tag>, log10_k_<tag>_low, in_domain_<tag>, ..."""
+def predict_sites(site_rows: pd.DataFrame, fit, settings, summary: dict, level) -> pd.DataFrame:
+    """Predictions per site at `level` for the run's dienophile, with the applicability domain:
+    every model descriptor within the reference set's span and leverage, the site's class
+    (kind, aromatic or not) in the reference set, and a verified saddle. Adds the level's
+    columns <level>_log10_k_pred, <level>_log10_k_low, ..., <level>_in_domain, <level>_domain_note."""
+    view = at_level(site_rows, level)
     out = site_rows.copy()
     run = canonical(summary["run_dienophile"])
     for name, smiles in summary["dienophile_terms"].items():
-        out[name] = 1.0 if canonical(smiles) == run else 0.0
-    c_pred, c_lo, c_hi, c_lev, c_dom, c_note = (level_column(c, tag) for c in PREDICTION_COLUMNS)
-    for col in (c_pred, c_lo, c_hi, c_lev):
-        out[col] = np.nan
-    out[c_dom] = pd.Series([None] * len(out), dtype=object)
+        view[name] = 1.0 if canonical(smiles) == run else 0.0
+    c_pred, c_lo, c_hi, c_lev, c_dom, c_note = (col(level, c) for c in PREDICTION_COLUMNS)
+    for c in (c_pred, c_lo, c_hi, c_lev):
+        out[c] = np.nan
+    out[c_dom] = pd.Series([None] * len(out), dtype=object, index=out.index)
     out[c_note] = ""
     if not len(out):
         return out
     for f in fit.features:
-        if f not in out:
-            out[f] = np.nan
-    ok = (out["site_status"] == "ok") & out[fit.features].notna().all(axis=1)
+        if f not in view:
+            view[f] = np.nan
+    ok = (view["site_status"] == "ok") & view[fit.features].notna().all(axis=1)
     if ok.any():
-        X = out.loc[ok, fit.features].to_numpy(float)
-        pred, lo, hi = mdl.predict(fit, X, config["model"]["interval"])
+        X = view.loc[ok, fit.features].to_numpy(float)
+        pred, lo, hi = mdl.predict(fit, X, settings["model"]["interval"])
         lev, _, reasons = mdl.domain(fit, X)
         out.loc[ok, c_pred] = pred
         out.loc[ok, c_lo] = lo
         out.loc[ok, c_hi] = hi
         out.loc[ok, c_lev] = lev
-        classes = [site_class(k, a) for k, a in zip(out.loc[ok, "site_kind"], out.loc[ok, "aromatic"])]
-        verified = out.loc[ok, "ts_verified"].fillna(False).astype(bool).tolist()
+        classes = [site_class(k, a) for k, a in zip(view.loc[ok, "site_kind"], view.loc[ok, "aromatic"])]
+        verified = view.loc[ok, "ts_verified"].fillna(False).astype(bool).tolist()
         notes = []
         for why, c, v in zip(reasons, classes, verified):
             why = list(why)
@@ -326,26 +369,48 @@ def predict_sites(site_rows: pd.DataFrame, fit, config: dict, summary: dict, tag
     return out
 
 
-def choose_level(sites: pd.DataFrame, refined_label: str | None, unpriced_note: str = "") -> pd.DataFrame:
-    """One level per site: the refined model's prediction where the site has one, else the
-    GFN2-xTB model's, named in `level` and, where the refinement was asked for and failed,
-    in `level_note`. The chosen values go to log10_k_pred, log10_k_low, ..., in_domain."""
+def _why_not(site: pd.Series, level, models: dict, settings) -> str:
+    """Why `level` gave a site no prediction, in a chemist's words."""
+    model = models.get(level.name, {})
+    if "error" in model:
+        return f"the {level.name} model could not be fitted: {model['error']}"
+    status, message = site.get(col(level, "status"), ""), site.get(col(level, "message"), "")
+    if status == "not_computed":
+        levels = settings.ranking_levels
+        nxt = levels[levels.index(level) + 1].name if level in levels[:-1] else "the next level"
+        return f"not computed at {level.name}: not among the {settings.rows} best rows at {nxt} (ranking.rows)"
+    if isinstance(status, str) and status and status != "ok":
+        return f"{level.name} gave no barrier ({status}: {message})"
+    return f"{level.name} gave no prediction (a model descriptor is missing)"
+
+
+def choose_level(sites: pd.DataFrame, settings, models: dict) -> pd.DataFrame:
+    """One level per site: the first ranking level with a prediction for it, named in
+    `level` (`level_method` says how that level computes its barrier) and, where an earlier
+    level gave none, why in `level_note`. The chosen level's values go to the unprefixed
+    columns log10_k_pred, log10_k_low, ..., barrier_kJmol, electronic_barrier_kJmol."""
     out = sites.copy()
-    refined = (out["log10_k_refined"].notna() if "log10_k_refined" in out
-               else pd.Series(False, index=out.index))
-    for name in PREDICTION_COLUMNS:
-        fast = out[level_column(name, "xtb")]
-        out[name] = out[level_column(name, "refined")].where(refined, fast) if refined.any() else fast
-    out["level"] = np.where(refined, refined_label or "", FAST_LEVEL)
-    out["level_note"] = ""
-    if refined_label:
-        asked = out.get("refine_status", pd.Series("", index=out.index)).fillna("")
-        fell_back = ~refined & out["log10_k_xtb"].notna() & (asked != "")
-        out.loc[fell_back, "level_note"] = [
-            f"ranked at GFN2-xTB: the {refined_label} pricing did not give a value ({st}: {msg})"
-            for st, msg in zip(out.loc[fell_back, "refine_status"], out.loc[fell_back, "refine_message"])]
-        if unpriced_note:
-            out.loc[~refined & out["log10_k_xtb"].notna() & (asked == ""), "level_note"] = unpriced_note
+    levels = settings.ranking_levels
+    chosen = pd.Series("", index=out.index, dtype=object)
+    for level in levels:
+        chosen[(chosen == "") & out[col(level, "log10_k_pred")].notna()] = level.name
+    for name in ROW_LEVEL_COLUMNS:
+        values = pd.Series(np.nan, index=out.index, dtype=object)
+        for level in levels:
+            mask = chosen == level.name
+            values[mask] = out.loc[mask, col(level, name)]
+        out[name] = values.infer_objects() if name in ("in_domain", "domain_note") else values.astype(float)
+    by_name = {lv.name: lv for lv in levels}
+    out["level"] = chosen.where(chosen != "", None)
+    out["barrier_kind"] = [by_name[c].barrier if c else None for c in chosen]
+    out["level_method"] = [f"{by_name[c].label()}, {by_name[c].barrier.replace('_', ' ')} barrier"
+                           + ("" if by_name[c].places_atoms else " on GFN2-xTB structures") if c else None
+                           for c in chosen]
+    notes = []
+    for idx, c in chosen.items():
+        skipped = levels[:[lv.name for lv in levels].index(c)] if c else []
+        notes.append("; ".join(f"ranked at {c}: " + _why_not(out.loc[idx], lv, models, settings) for lv in skipped))
+    out["level_note"] = notes
     return out
 
 
@@ -360,21 +425,24 @@ def site_regio_hint(site: dict, dienophile: dict, demand_type: str) -> str:
                       tuple(i + 1 for i in dienophile["reactive_bond"]))
 
 
-RANKING_COLUMNS = ["rank", "id", "level", "in_domain", "smiles", "status", "message", "domain_note",
-                   "log10_k_pred", "log10_k_low", "log10_k_high", "barrier_refined_kJmol", "barrier_kJmol",
+RANKING_COLUMNS = ["rank", "id", "name", "level", "in_domain", "smiles", "status", "message", "domain_note",
+                   "log10_k_pred", "log10_k_low", "log10_k_high", "barrier_kJmol", "barrier_kind",
+                   "electronic_barrier_kJmol", "level_method",
                    "scis_penalty_kJmol", "reactive_fraction", "homo_eV", "lumo_eV", "gap_normal_eV",
                    "gap_inverse_eV", "demand", "regio_hint", "regio_ts", "orientation_gap_kJmol",
                    "face_preference", "face_gap_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
                    "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
-                   "model_barrier_kJmol", "ts_imag_cm1", "ts_verified", "best_site", "site_kind",
-                   "n_sites", "dihedral_min_deg", "isomer_smiles", "n_isomers", "structure_key",
-                   "transition_key", "n_gradients", "converged", "dienophile", "row",
-                   "rank_xtb", "log10_k_xtb", "log10_k_xtb_low", "log10_k_xtb_high", "in_domain_xtb",
-                   "refined_level", "refine_status", "refine_message", "electronic_barrier_refined_kJmol",
-                   "contact_dispersion_kJmol", "aromatic"]
-BEST_SITE_COLUMNS = [c for c in RANKING_COLUMNS if c not in (
-    "rank", "id", "smiles", "status", "message", "best_site", "n_sites", "n_isomers", "structure_key",
-    "n_gradients", "converged", "row", "rank_xtb")]
+                   "model_barrier_kJmol", "contact_dispersion_kJmol", "ts_imag_cm1", "ts_verified", "best_site",
+                   "site_kind", "aromatic", "n_sites", "dihedral_min_deg", "isomer_smiles", "n_isomers",
+                   "structure_key", "transition_key", "n_gradients", "converged", "dienophile", "row"]
+ROW_COLUMNS = ("rank", "id", "name", "smiles", "status", "message", "best_site", "n_sites", "n_isomers",
+               "structure_key", "n_gradients", "converged", "row")
+BEST_SITE_COLUMNS = [c for c in RANKING_COLUMNS if c not in ROW_COLUMNS]
+
+
+def ranking_columns(settings) -> list[str]:
+    """ranking.csv's columns: what ranks each row, then each ranking level's view of it."""
+    return RANKING_COLUMNS + [col(lv, c) for lv in settings.ranking_levels for c in LEVEL_VIEW_COLUMNS]
 
 
 def _order(table: pd.DataFrame, column: str, eligible: pd.Series) -> pd.Series:
@@ -385,15 +453,26 @@ def _order(table: pd.DataFrame, column: str, eligible: pd.Series) -> pd.Series:
     return out
 
 
-def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> pd.DataFrame:
-    """One row per input record, in input order, best isomer and site of each at the
-    row's level (see choose_level); rank_xtb ranks the same rows by the GFN2-xTB model."""
+def _level_view(ok: pd.DataFrame, level) -> dict:
+    """A row's view at one level: its best site there (highest prediction at that level)."""
+    pred = col(level, "log10_k_pred")
+    if pred not in ok or not ok[pred].notna().any():
+        first = ok.iloc[0] if len(ok) else {}
+        return {col(level, c): first.get(col(level, c), np.nan) for c in ("status", "message")}
+    best = ok.loc[ok[pred].idxmax()]
+    return {col(level, c): best.get(col(level, c), np.nan) for c in LEVEL_VIEW_COLUMNS if c != "rank"}
+
+
+def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame, settings) -> pd.DataFrame:
+    """One row per input record, in input order, best isomer and site of each at the row's
+    level (see choose_level); <level>_rank ranks the same rows at each ranking level alone."""
+    columns = ranking_columns(settings)
     rows = []
     for rec in records:
         row = {"row": rec["row"], "id": rec["id"], "smiles": rec["smiles"], "status": rec["status"],
                "message": rec["message"], "n_isomers": len(rec["isomers"])}
         for k, v in rec.get("extra", {}).items():
-            row[k if k not in RANKING_COLUMNS else f"input_{k}"] = v
+            row[k if k not in columns or k == "name" else f"input_{k}"] = v
         if rec["status"] == "ok":
             mine = sites[sites["row"] == rec["row"]] if len(sites) else sites
             ok = mine[mine["site_status"] == "ok"] if len(mine) else mine
@@ -403,8 +482,9 @@ def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> 
                 row.update({c: best[c] for c in BEST_SITE_COLUMNS if c in best})
                 row.update({"best_site": best["site"], "n_sites": int((mine["key"] == best["key"]).sum()),
                             "structure_key": best["key"], "n_gradients": res.get("n_gradients"),
-                            "converged": res.get("converged"),
-                            "log10_k_xtb": ok["log10_k_xtb"].max()})   # the row's best site at GFN2-xTB
+                            "converged": res.get("converged")})
+                for level in settings.ranking_levels:
+                    row.update(_level_view(ok, level))
                 notes = [row["message"], res.get("message", ""), best.get("level_note", "")]
                 if best["ts_status"] != "ok":
                     row["status"] = best["ts_status"]
@@ -414,13 +494,15 @@ def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame) -> 
                 row.update(_unranked(rec, computed, ok))
         rows.append(row)
     table = pd.DataFrame(rows)
-    for col in RANKING_COLUMNS:
-        if col not in table:
-            table[col] = np.nan
+    for c in columns:
+        if c not in table:
+            table[c] = np.nan
     ranked = table["status"].isin(RANKED_STATUSES) & table["log10_k_pred"].notna()
     table["rank"] = _order(table, "log10_k_pred", ranked)
-    table["rank_xtb"] = _order(table, "log10_k_xtb", ranked & table["log10_k_xtb"].notna())
-    return table[RANKING_COLUMNS + [c for c in table.columns if c not in RANKING_COLUMNS]]
+    for level in settings.ranking_levels:
+        pred = table[col(level, "log10_k_pred")]
+        table[col(level, "rank")] = _order(table, col(level, "log10_k_pred"), ranked & pred.notna())
+    return table[columns + [c for c in table.columns if c not in columns]]
 
 
 def _unranked(rec: dict, computed: Computed, ok: pd.DataFrame) -> dict:
@@ -450,28 +532,30 @@ def _canonical_or_none(smiles) -> str | None:
     return canonical(smiles) if isinstance(smiles, str) and smiles else None
 
 
+def ranking_model(summary: dict) -> dict:
+    """The model of the level that ranks (model.json's levels[ranking_level]); {} when none fitted."""
+    return summary.get("levels", {}).get(summary.get("ranking_level") or "", {})
+
+
 def yardstick(table: pd.DataFrame, ref_table: pd.DataFrame, summary: dict,
               smiles: str = YARDSTICK_SMILES) -> tuple[dict, str]:
     """The model's own log10 k for one diene (butadiene by default) with the run's dienophile,
-    per level ({level: log10 k}), and where it came from: a library row that is that diene,
-    else its reference row measured with the run's dienophile. ({}, why) when neither."""
+    per ranking level ({level name: log10 k}), and where it came from: a library row that is
+    that diene, else its reference row measured with the run's dienophile. ({}, why) when neither."""
     bd = _canonical_or_none(smiles)
+    levels = summary.get("ranking_levels", [])
     lib = table[table["rank"].notna() & (table["smiles"].map(_canonical_or_none) == bd)]
     if len(lib):
         r = lib.iloc[0]
-        out = {FAST_LEVEL: float(r["log10_k_xtb"])}
-        if r["level"] != FAST_LEVEL:
-            out[str(r["level"])] = float(r["log10_k_pred"])
+        out = {lv: float(r[col(lv, "log10_k_pred")]) for lv in levels if pd.notna(r.get(col(lv, "log10_k_pred")))}
         return out, f"library row {r['id']}"
     run_dph = canonical(summary.get("run_dienophile", ""))
-    if len(ref_table) and "log10_k_fit" in ref_table:
+    if len(ref_table):
         ref = ref_table[(ref_table["smiles"].map(_canonical_or_none) == bd)
                         & (ref_table["dienophile_smiles"].map(_canonical_or_none) == run_dph)]
         if len(ref):
             r = ref.iloc[0]
-            out = {FAST_LEVEL: float(r["log10_k_fit"])} if pd.notna(r.get("log10_k_fit")) else {}
-            if pd.notna(r.get("log10_k_fit_refined")) and summary.get("ranking_level", FAST_LEVEL) != FAST_LEVEL:
-                out[summary["ranking_level"]] = float(r["log10_k_fit_refined"])
+            out = {lv: float(r[col(lv, "log10_k_fit")]) for lv in levels if pd.notna(r.get(col(lv, "log10_k_fit")))}
             if out:
                 return out, f"reference row {r['id']}"
     return {}, (f"{smiles} was not computed with this dienophile: add it to the library to get "
@@ -501,7 +585,8 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
     base = out["level"].map(lambda lv: yard.get(str(lv), np.nan)).astype(float)
     out["times_faster_than_butadiene"] = np.where(out["log10_k_pred"].notna() & base.notna(),
                                                   10.0 ** (out["log10_k_pred"].astype(float) - base), np.nan)
-    rmse = float(summary.get("cv_rmse_log10k", np.nan))
+    model = ranking_model(summary)
+    rmse = float(model.get("cv_rmse_log10k", np.nan))
     width = math.sqrt(2.0) * rmse
     out["tier"] = pd.Series(pd.NA, index=out.index, dtype="Int64")
     ranked = out[out["rank"].notna()].sort_values("rank")
@@ -511,13 +596,13 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
             tier, top = tier + 1, value
         out.loc[idx, "tier"] = tier
     run_dph = canonical(summary.get("run_dienophile", ""))
-    fitted = {canonical(d) for d in [summary.get("base_dienophile", "")]
-              + list(summary.get("dienophile_terms", {}).values()) if d}
+    fitted = {canonical(d) for d in [model.get("base_dienophile", "")]
+              + list(model.get("dienophile_terms", {}).values()) if d}
     in_ref = run_dph in fitted
     out["dienophile_in_reference"] = in_ref
     if not in_ref:
         transfer = (f"dienophile not in the reference set: log10 k and interval transferred from "
-                    f"{summary.get('base_dienophile', 'the reference dienophile')} (order more trustworthy "
+                    f"{model.get('base_dienophile', 'the reference dienophile')} (order more trustworthy "
                     "than size)")
         has = out["rank"].notna()
         out.loc[has, "domain_note"] = [("; ".join(filter(None, [str(n) if isinstance(n, str) else "", transfer])))
@@ -540,7 +625,7 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
         cols.remove(new)
         cols.insert(cols.index(after) + 1, new)
     out = out[cols]
-    pairwise = float(summary.get("cv_pairwise_accuracy", np.nan))
+    pairwise = float(model.get("cv_pairwise_accuracy", np.nan))
     extra = {"bench": {
         "yardstick": {"smiles": YARDSTICK_SMILES, "log10_k": yard, "source": source},
         "tier_width_log10": round(width, 3) if np.isfinite(width) else None,

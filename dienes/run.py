@@ -1,13 +1,16 @@
-"""The steps of a run, each one call for a workflow rule:
+"""The steps of a run, each one call for a workflow rule, in the order of the plan:
 
-prepare (read the library once, list the work) -> structures (a batch of
-conformer searches) -> dienophile -> transition states (a batch) ->
-[shortlist -> refinement] -> rank -> report.
+prepare (read the library once, record the settings, list the work) -> structures
+(batches of conformer searches) -> dienophiles -> transition structures (batches)
+-> [shortlist] -> single points at each priced level (dienophiles, batches of pairs)
+-> rank -> torsion profiles -> report.
 
-Per-structure results are files named by what they depend on and reused by
-every later run; a batch job computes only the members whose file is absent.
-Heavy libraries are imported inside the step that needs them, so a job pays
-only for what it uses.
+The settings are validated once, at the edge (Snakefile, command line, Python API),
+and recorded in the manifest; every later step reads them from there, so a job on
+another machine computes with exactly the settings its result files are named by.
+Per-structure results are files named by what they depend on and reused by every
+later run; a batch job computes only the members whose file is absent. Heavy
+libraries are imported inside the step that needs them.
 """
 
 from __future__ import annotations
@@ -20,6 +23,7 @@ import time
 from pathlib import Path
 
 from . import settings as cfg
+from .layout import Layout, read_json, transition_stem, write_json
 
 log = logging.getLogger("dienes")
 
@@ -27,6 +31,8 @@ THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"
                     "VECLIB_MAXIMUM_THREADS", "NUMEXPR_NUM_THREADS")
 AUTO_JOBS = 16           # structures_per_job 'auto': new work is cut into about this many jobs
 AUTO_MAX_PER_JOB = 25    # ... of at most this many structures
+AUTO_LEVEL_JOBS = 24     # single points (about a minute a pair) are cut into about this many jobs
+PROFILES_SHOWN = 3       # torsion profiles of the top and bottom ranked freely rotating dienes
 
 
 def pin_threads(n: int) -> None:
@@ -39,54 +45,25 @@ def _sha256(path) -> str:
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
-def _json():
-    from . import pipeline
-    return pipeline.write_json, pipeline.read_json
-
-
-# ---------------------------------------------------------------- file names
-
-def structure_path(results, key: str) -> Path:
-    return Path(results) / "structures" / f"{key}.json"
-
-
-def dienophile_path(results, dhash: str) -> Path:
-    return Path(results) / "dienophiles" / f"{dhash}.json"
-
-
-def transition_path(results, stem: str) -> Path:
-    return Path(results) / "transition" / f"{stem}.json"
-
-
-def batch_path(results, stage: str, bid: str) -> Path:
-    return Path(results) / "batches" / stage / f"{bid}.json"
-
-
-def refined_path(results, stem: str, rhash: str) -> Path:
-    """A (structure, dienophile) pair priced at the refined level `rhash`."""
-    return Path(results) / "refined" / rhash / f"{stem}.json"
-
-
-def refined_structure_path(results, key: str, rhash: str) -> Path:
-    """A structure's minima priced at the refined level (shared by every dienophile)."""
-    return Path(results) / "refined" / rhash / "structures" / f"{key}.json"
-
-
-def refined_dienophile_path(results, dhash: str, rhash: str) -> Path:
-    return Path(results) / "refined" / rhash / "dienophiles" / f"{dhash}.json"
+def settings_of(manifest: dict, computes_structures: bool = False) -> cfg.Settings:
+    """The run's settings as prepare recorded them. A step that runs GFN2-xTB stops with a
+    clear message where this process cannot run the recorded backend."""
+    settings = cfg.resolve(manifest["run_settings"], fallback=False)
+    if computes_structures:
+        settings.require_backend()
+    return settings
 
 
 # ------------------------------------------------------------------ prepare
 
-def _record_dict(rec, config: dict, dienophile_smiles: str) -> dict:
-    st = cfg.structure_settings(config)
+def _record_dict(rec, settings: cfg.Settings, dienophile_smiles: str) -> dict:
     return {"row": rec.row, "id": rec.id, "smiles": rec.smiles, "extra": rec.extra,
             "status": rec.status, "message": rec.message, "std_smiles": rec.std_smiles,
             "dienophile": {"smiles": dienophile_smiles,
-                           "dhash": cfg.dienophile_hash(config, dienophile_smiles),
-                           "thash": cfg.transition_hash(config, dienophile_smiles)},
-            "isomers": [{"smiles": i.smiles, "inchikey": i.inchikey,
-                         "key": cfg.structure_key(i.inchikey, st)} for i in rec.isomers]}
+                           "dhash": settings.dienophile_hash(dienophile_smiles),
+                           "thash": settings.transition_hash(dienophile_smiles)},
+            "isomers": [{"smiles": i.smiles, "inchikey": i.inchikey, "key": settings.structure_key(i.inchikey)}
+                        for i in rec.isomers]}
 
 
 def _batches(missing: list[str], per_job, stage: str) -> dict:
@@ -103,40 +80,40 @@ def _batches(missing: list[str], per_job, stage: str) -> dict:
     return out
 
 
-def _reference_dienophile(rec, config: dict) -> tuple[str, str]:
+def _reference_dienophile(rec, settings: cfg.Settings) -> tuple[str, str]:
     """A reference row's dienophile, or the run's (with a note) when it has none or a bad one."""
     from .library import check_dienophile
     given = (rec.extra.get("dienophile_smiles") or "").strip()
     if not given:
-        return config["dienophile"], "no dienophile_smiles: the run's dienophile is used"
+        return settings["dienophile"], "no dienophile_smiles: the run's dienophile is used"
     problem = check_dienophile(given)
     if problem:
         return "", f"dienophile_smiles: {problem}"
     return given, ""
 
 
-def prepare(config: dict, manifest_path, results="results") -> dict:
+def prepare(settings, manifest_path, results="results") -> dict:
     """Read and standardise the library and the reference set once; write the manifest
-    that lists every record, every result file the run needs and, for what is not
-    computed yet, the batches that will compute it."""
+    that records the settings and lists every record, every result file the run needs
+    and, for what is not computed yet, the batches that will compute it."""
     from . import backends, library
-    write_json, _ = _json()
-    config = cfg.validate(config)
-    backends.require(config["backend"])
-    problem = library.check_dienophile(config["dienophile"])
+    settings = cfg.resolve(settings)
+    layout = Layout(results)
+    backends.require(settings.backend)
+    problem = library.check_dienophile(settings["dienophile"])
     if problem:
-        raise library.LibraryError(f"dienophile {config['dienophile']!r}: {problem}")
-    limits = library.Limits(**config["limits"])
-    records = [_record_dict(r, config, config["dienophile"])
-               for r in library.read_library(config["library"], limits)]
+        raise library.LibraryError(f"dienophile {settings['dienophile']!r}: {problem}")
+    limits = library.Limits(**settings["limits"])
+    records = [_record_dict(r, settings, settings["dienophile"])
+               for r in library.read_library(settings["library"], limits)]
     reference = []
-    for r in library.read_library(config["reference"], limits, what="reference"):
-        smiles, note = _reference_dienophile(r, config)
+    for r in library.read_library(settings["reference"], limits, what="reference"):
+        smiles, note = _reference_dienophile(r, settings)
         if not smiles:
             r.fail("invalid_dienophile", note)
         elif note:
             r.message = "; ".join(filter(None, [r.message, note]))
-        reference.append(_record_dict(r, config, smiles or config["dienophile"]))
+        reference.append(_record_dict(r, settings, smiles or settings["dienophile"]))
     structures, dienophiles, transitions = {}, {}, {}
     for rec in records + reference:
         if rec["status"] != "ok":
@@ -145,50 +122,56 @@ def prepare(config: dict, manifest_path, results="results") -> dict:
         dienophiles[d["dhash"]] = d["smiles"]
         for iso in rec["isomers"]:
             structures[iso["key"]] = iso["smiles"]
-            transitions[f"{iso['key']}__{d['thash']}"] = {"key": iso["key"], "dhash": d["dhash"]}
-    per_job = config["jobs"]["structures_per_job"]
-    missing_s = [k for k in sorted(structures) if not structure_path(results, k).is_file()]
+            transitions[transition_stem(iso["key"], d["thash"])] = {"key": iso["key"], "dhash": d["dhash"]}
+    per_job = settings["jobs"]["structures_per_job"]
+    missing_s = [k for k in sorted(structures) if not layout.structure(k).is_file()]
     s_batches = _batches(missing_s, per_job, "structures")
     producer = {k: bid for bid, members in s_batches.items() for k in members}
-    missing_t = [t for t in sorted(transitions) if not transition_path(results, t).is_file()]
+    missing_t = [t for t in sorted(transitions) if not layout.transition(t).is_file()]
     t_batches = {bid: {"members": members,
                        "needs": sorted({producer[transitions[t]["key"]] for t in members
                                         if transitions[t]["key"] in producer}),
                        "dienophiles": sorted({transitions[t]["dhash"] for t in members})}
                  for bid, members in _batches(missing_t, per_job, "transition").items()}
-    manifest = {"library": str(config["library"]), "library_sha256": _sha256(config["library"]),
-                "reference": str(config["reference"]), "reference_sha256": _sha256(config["reference"]),
-                "settings": cfg.structure_settings(config), "seed": config["seed"],
-                "run_dienophile": {"smiles": config["dienophile"],
-                                   "dhash": cfg.dienophile_hash(config, config["dienophile"]),
-                                   "thash": cfg.transition_hash(config, config["dienophile"])},
+    run_dph = settings["dienophile"]
+    manifest = {"library": str(settings["library"]), "library_sha256": _sha256(settings["library"]),
+                "reference": str(settings["reference"]), "reference_sha256": _sha256(settings["reference"]),
+                "run_settings": settings.as_config(), "backend_note": settings.backend_note,
+                "settings": settings.structure_settings(), "seed": settings["seed"],
+                "run_dienophile": {"smiles": run_dph, "dhash": settings.dienophile_hash(run_dph),
+                                   "thash": settings.transition_hash(run_dph)},
                 "records": records, "reference_records": reference,
                 "structures": dict(sorted(structures.items())), "dienophiles": dienophiles,
                 "transitions": dict(sorted(transitions.items())),
-                "batches": {"structures": s_batches, "transition": t_batches}}
-    rows = config["refine"]["rows"]
-    if rows == "all":
-        manifest["batches"]["refine"] = refine_batches(manifest, config, refined_pairs(manifest, config), results)
-    manifest["refine"] = {"rows": rows, "rhash": cfg.refine_hash(config) if rows != "none" else None}
+                "levels": {lv.name: {"key": lv.key(), "label": lv.label(), "rows": settings.rows_for(lv)}
+                           for lv in settings.priced_levels},
+                "batches": {"structures": s_batches, "transition": t_batches, "level": {}}}
+    for level in settings.priced_levels:
+        if settings.rows_for(level) == "all":
+            manifest["batches"]["level"] |= level_batches(manifest, level, list(transitions), layout)
     write_json(manifest, manifest_path)
     return manifest
+
+
+def _pending(manifest: dict) -> set[str]:
+    return {s for stage in manifest.get("batches", {}).values() for b in stage.values()
+            for s in (b["members"] if isinstance(b, dict) else b)}
 
 
 def stale_manifest(manifest_path, results="results") -> str:
     """Why an existing manifest no longer describes the files ('' when it does): a result
     file it counts as done has gone (deleted, or moved aside as unreadable)."""
-    import json
+    layout = Layout(results)
     try:
-        manifest = json.loads(Path(manifest_path).read_text())
+        manifest = read_json(manifest_path)
     except (OSError, ValueError):
         return ""
-    pending = {s for stage in manifest.get("batches", {}).values() for bid, b in stage.items()
-               for s in (b["members"] if isinstance(b, dict) else b)}
+    pending = _pending(manifest)
     for key in manifest.get("structures", {}):
-        if key not in pending and not structure_path(results, key).is_file():
+        if key not in pending and not layout.structure(key).is_file():
             return f"result {key} is missing"
     for stem in manifest.get("transitions", {}):
-        if stem not in pending and not transition_path(results, stem).is_file():
+        if stem not in pending and not layout.transition(stem).is_file():
             return f"transition result {stem} is missing"
     return ""
 
@@ -196,18 +179,18 @@ def stale_manifest(manifest_path, results="results") -> str:
 def drop_stale_batches(results="results") -> list[Path]:
     """Remove batch summaries that claim a member whose result file is gone (deleted, or
     moved aside as unreadable): the batch then runs again and recomputes just that member."""
-    import json
+    layout = Layout(results)
+    where = {"structures": lambda s, n: layout.structure(n), "transition": lambda s, n: layout.transition(n),
+             "level": lambda s, n: layout.level_pair(s["lkey"], n)}
     dropped = []
-    for stage, where in (("structures", structure_path), ("transition", transition_path),
-                         ("refine", refined_path)):
-        for flag in sorted((Path(results) / "batches" / stage).glob("*.json")):
+    for stage, path_of in where.items():
+        for flag in sorted((layout.root / "batches" / stage).glob("*.json")):
             try:
-                summary = json.loads(flag.read_text())
-                names = [m.get("key") or m.get("stem") for m in summary["members"]]
-                extra = (summary["rhash"],) if stage == "refine" else ()
-            except (OSError, ValueError, KeyError, AttributeError):
-                names, extra = [None], ()
-            if any(n is None or not where(results, n, *extra).is_file() for n in names):
+                summary = read_json(flag)
+                paths = [path_of(summary, m.get("key") or m.get("stem")) for m in summary["members"]]
+            except (OSError, ValueError, KeyError, AttributeError, TypeError):
+                paths = [None]
+            if any(p is None or not p.is_file() for p in paths):
                 flag.unlink(missing_ok=True)
                 dropped.append(flag)
     return dropped
@@ -222,17 +205,16 @@ def _batch_summary(stage: str, bid: str, done: list[dict], t0: float) -> dict:
             "wall_time_s": round(time.perf_counter() - t0, 3)}
 
 
-def compute_structures(config: dict, manifest_path, bid: str, out_path, results="results") -> dict:
+def compute_structures(manifest_path, bid: str, out_path, results="results") -> dict:
     """Conformer search and s-cis analysis of one batch of structures."""
     from .pipeline import compute_structure
-    write_json, read_json = _json()
     t0 = time.perf_counter()
-    config = cfg.validate(config)
-    st = cfg.structure_settings(config)
+    layout = Layout(results)
     manifest = read_json(manifest_path)
+    st = settings_of(manifest, computes_structures=True).structure_settings()
     done = []
     for key in manifest["batches"]["structures"][bid]:
-        path = structure_path(results, key)
+        path = layout.structure(key)
         if path.is_file():
             done.append({"key": key, "computed": False})
             continue
@@ -247,37 +229,36 @@ def compute_structures(config: dict, manifest_path, bid: str, out_path, results=
     return summary
 
 
-def dienophile(config: dict, smiles: str, out_path) -> dict:
-    from .pipeline import compute_dienophile
-    write_json, _ = _json()
-    config = cfg.validate(config)
-    result = compute_dienophile(smiles, cfg.structure_settings(config))
+def compute_dienophile(manifest_path, dhash: str, out_path) -> dict:
+    """The dienophile's GFN2-xTB minimum and frontier orbitals."""
+    from .pipeline import compute_dienophile as compute
+    manifest = read_json(manifest_path)
+    settings = settings_of(manifest, computes_structures=True)
+    result = compute(manifest["dienophiles"][dhash], settings.structure_settings())
     write_json(result, out_path)
     return result
 
 
-def compute_transitions(config: dict, manifest_path, bid: str, out_path, results="results") -> dict:
+def compute_transitions(manifest_path, bid: str, out_path, results="results") -> dict:
     """Transition structures of one batch of (structure, dienophile) pairs."""
-    from .pipeline import backend_settings
     from .transition import transition_states_for_structure
-    write_json, read_json = _json()
     t0 = time.perf_counter()
-    config = cfg.validate(config)
-    bs = backend_settings(cfg.structure_settings(config))
+    layout = Layout(results)
     manifest = read_json(manifest_path)
+    settings = settings_of(manifest, computes_structures=True)
+    bs = settings.backend_settings()
     dph_cache = {}
     done = []
     for stem in manifest["batches"]["transition"][bid]["members"]:
-        path = transition_path(results, stem)
+        path = layout.transition(stem)
         if path.is_file():
             done.append({"stem": stem, "computed": False})
             continue
         task = manifest["transitions"][stem]
         if task["dhash"] not in dph_cache:
-            dph_cache[task["dhash"]] = read_json(dienophile_path(results, task["dhash"]))
-        structure = read_json(structure_path(results, task["key"]))
-        r = transition_states_for_structure(structure, dph_cache[task["dhash"]], bs,
-                                            config["transition_state"])
+            dph_cache[task["dhash"]] = read_json(layout.dienophile(task["dhash"]))
+        structure = read_json(layout.structure(task["key"]))
+        r = transition_states_for_structure(structure, dph_cache[task["dhash"]], bs, settings["transition_state"])
         r["key"] = task["key"]
         write_json(r, path)
         states = {label: s.get("status") for label, s in r["sites"].items()}
@@ -290,329 +271,327 @@ def compute_transitions(config: dict, manifest_path, bid: str, out_path, results
     return summary
 
 
-# -------------------------------------------------------------- refinement
+# ------------------------------------------------- single points at a level
 
-AUTO_REFINE_JOBS = 24    # refined pricing (about a minute a pair) is cut into about this many jobs
-
-
-def refined_pairs(manifest: dict, config: dict, ranking=None) -> list[str]:
-    """The (structure, dienophile) pairs priced at the refined level, by `refine.rows`:
-    'all' every pair of the run (library and reference); 'none' none; an integer N the
-    N best library rows by the GFN2-xTB ranking (needs `ranking`) and every reference pair,
-    so that the refined model can be fitted."""
-    rows = config["refine"]["rows"]
-    if rows == "none":
-        return []
+def level_pairs(manifest: dict, settings: cfg.Settings, level: cfg.Level, ranking=None) -> list[str]:
+    """The (structure, dienophile) pairs computed at `level`: every pair of the run (library
+    and reference), or, where ranking.rows is N for this level, the N best library rows of
+    `ranking` (the table ranked at the next levels) and every reference pair, so that the
+    level's model can be fitted."""
+    rows = settings.rows_for(level)
     if rows == "all":
         return list(manifest["transitions"])
-    top = ranking[(ranking["status"].isin(("ok", "ts_unverified"))) & ranking["rank"].notna()]
+    top = ranking[ranking["status"].isin(("ok", "ts_unverified")) & ranking["rank"].notna()]
     stems = list(top.sort_values("rank").head(int(rows))["transition_key"].astype(str))
     for rec in manifest["reference_records"]:
         if rec["status"] == "ok":
-            stems += [f"{i['key']}__{rec['dienophile']['thash']}" for i in rec["isomers"]]
+            stems += [transition_stem(i["key"], rec["dienophile"]["thash"]) for i in rec["isomers"]]
     return list(dict.fromkeys(s for s in stems if s in manifest["transitions"]))
 
 
-def refine_batches(manifest: dict, config: dict, stems: list[str], results="results") -> dict:
-    """Jobs for the pairs whose refined result is absent: {batch id: {members, needs (the
-    transition batches of this run that compute them), dienophiles, rhash}}."""
-    rhash = cfg.refine_hash(config)
-    missing = [s for s in stems if not refined_path(results, s, rhash).is_file()]
+def level_batches(manifest: dict, level: cfg.Level, stems: list[str], layout: Layout) -> dict:
+    """Jobs for the pairs whose result at `level` is absent: {batch id: {members, level, lkey,
+    needs (the transition batches of this run that compute them), dienophiles}}."""
+    lkey = level.key()
+    missing = [s for s in stems if not layout.level_pair(lkey, s).is_file()]
     producer = {stem: bid for bid, b in manifest["batches"]["transition"].items() for stem in b["members"]}
-    size = max(1, math.ceil(len(missing) / AUTO_REFINE_JOBS))
+    size = max(1, math.ceil(len(missing) / AUTO_LEVEL_JOBS))
     out = {}
-    for bid, members in _batches(missing, size, f"refine {rhash}").items():
-        out[bid] = {"members": members, "rhash": rhash,
+    for bid, members in _batches(missing, size, f"level {lkey}").items():
+        out[bid] = {"members": members, "level": level.name, "lkey": lkey,
                     "needs": sorted({producer[m] for m in members if m in producer}),
                     "dienophiles": sorted({manifest["transitions"][m]["dhash"] for m in members})}
     return out
 
 
-def shortlist(config: dict, manifest_path, out_path, results="results") -> dict:
-    """`refine.rows: N`: the pairs to price (the N best GFN2-xTB-ranked rows and the
-    reference) and the jobs for those not priced yet."""
-    write_json, read_json = _json()
-    config = cfg.validate(config)
+def shortlist(manifest_path, out_path, results="results") -> dict:
+    """ranking.rows N: rank at the levels after the first, then list the pairs the first
+    level computes (the N best rows and the reference) and the jobs for those not done yet."""
+    layout = Layout(results)
     manifest = read_json(manifest_path)
-    table = rank_tables(manifest, load_computed(manifest, results), config)[0]
-    stems = refined_pairs(manifest, config, table)
-    out = {"rhash": cfg.refine_hash(config), "rows": config["refine"]["rows"], "pairs": stems,
-           "batches": refine_batches(manifest | {"batches": {"transition": {}}}, config, stems, results)}
+    settings = settings_of(manifest)
+    first, rest = settings.ranking_levels[0], [lv.name for lv in settings.ranking_levels[1:]]
+    screen = settings.replace(ranking={"levels": rest, "rows": "all"})
+    table = rank_tables(manifest, load_computed(manifest, screen, layout, out_path), screen)[0]
+    stems = level_pairs(manifest, settings, first, table)
+    out = {"level": first.name, "lkey": first.key(), "rows": settings.rows, "pairs": stems,
+           "batches": level_batches(manifest | {"batches": {"transition": {}}}, first, stems, layout)}
     write_json(out, out_path)
     return out
 
 
-def thermal_source(config: dict):
-    """Where the pricing's thermal corrections come from: GFN2-xTB with the run's settings."""
-    from .pipeline import backend_settings
-    from .refine import Thermal
-    return Thermal(backend_settings(cfg.structure_settings(config)), float(config["temperature_K"]))
+def thermal_source(settings: cfg.Settings):
+    """Where the thermal corrections come from: GFN2-xTB with the run's settings."""
+    from .singlepoints import Thermal
+    return Thermal(settings.backend_settings(), float(settings["temperature_K"]))
 
 
-def refine_dienophile(config: dict, dienophile_file, out_path, threads: int = 1) -> dict:
-    """A dienophile priced at the refined level (once per dienophile and level)."""
-    from .refine import level_from_config, price_dienophile
-    write_json, read_json = _json()
-    config = cfg.validate(config)
-    r = price_dienophile(read_json(dienophile_file), level_from_config(config["refine"], threads),
-                         thermal_source(config))
+def level_dienophile(manifest_path, lkey: str, dhash: str, out_path, results="results", threads: int = 1) -> dict:
+    """A dienophile's minimum at a level (once per dienophile and level)."""
+    from .singlepoints import price_dienophile
+    manifest = read_json(manifest_path)
+    settings = settings_of(manifest, computes_structures=True)
+    level = _level_by_key(settings, lkey)
+    r = price_dienophile(read_json(Layout(results).dienophile(dhash)), level.energy_backend(threads),
+                         thermal_source(settings))
     write_json(r, out_path)
     return r
 
 
-def refine_pair(config: dict, manifest: dict, stem: str, level, results="results") -> dict:
-    """Refined barriers of one (structure, dienophile) pair, written to its result file. The
-    structure's minima are priced once per level and kept for every other dienophile."""
-    from .refine import price_pair, price_structure, sites_to_price
-    write_json, read_json = _json()
-    rhash = cfg.refine_hash(config)
+def _level_by_key(settings: cfg.Settings, lkey: str) -> cfg.Level:
+    for level in settings.priced_levels:
+        if level.key() == lkey:
+            return level
+    raise ValueError(f"no level of this run's ranking has the results folder {lkey}")
+
+
+def level_pair(settings: cfg.Settings, manifest: dict, stem: str, level: cfg.Level, energies,
+               layout: Layout) -> dict:
+    """Barriers of one (structure, dienophile) pair at `level`, written to its result file. The
+    structure's minima are computed once per level and kept for every other dienophile."""
+    from .singlepoints import price_pair, price_structure, sites_to_price
+    lkey = level.key()
     task = manifest["transitions"][stem]
-    transition = read_json(transition_path(results, stem))
-    spath = refined_structure_path(results, task["key"], rhash)
+    transition = read_json(layout.transition(stem))
+    spath = layout.level_structure(lkey, task["key"])
     priced = {}
     if sites_to_price(transition):      # a diene that cannot react costs no single point
         try:
             priced = read_json(spath)
         except (FileNotFoundError, ValueError):
-            priced = price_structure(read_json(structure_path(results, task["key"])), level,
-                                     thermal_source(config))
+            priced = price_structure(read_json(layout.structure(task["key"])), energies, thermal_source(settings))
             write_json(priced, spath)
-    dph = read_json(refined_dienophile_path(results, task["dhash"], rhash))
-    r = price_pair(priced, transition, dph, level, thermal_source(config)) | {"stem": stem}
-    write_json(r, refined_path(results, stem, rhash))
+    dph = read_json(layout.level_dienophile(lkey, task["dhash"]))
+    r = price_pair(priced, transition, dph, energies, thermal_source(settings)) | {"stem": stem}
+    write_json(r, layout.level_pair(lkey, stem))
     return r
 
 
-def refine_pairs(config: dict, manifest_path, plan_path, bid: str, out_path, results="results",
-                 threads: int = 1) -> dict:
-    """One refine batch (listed in the manifest, or in the shortlist for refine.rows: N)."""
-    from .refine import level_from_config
-    write_json, read_json = _json()
+def compute_level_pairs(manifest_path, plan_path, bid: str, out_path, results="results", threads: int = 1) -> dict:
+    """One batch of pairs at a level (listed in the manifest, or in the shortlist)."""
     t0 = time.perf_counter()
-    config = cfg.validate(config)
+    layout = Layout(results)
     manifest = read_json(manifest_path)
+    settings = settings_of(manifest, computes_structures=True)
     plan = read_json(plan_path)
-    batch = (plan["batches"]["refine"] if "records" in plan else plan["batches"])[bid]
-    level = level_from_config(config["refine"], threads)
+    batch = plan["batches"]["level"][bid] if "records" in plan else plan["batches"][bid]
+    level = _level_by_key(settings, batch["lkey"])
+    energies = level.energy_backend(threads)
     done = []
     for stem in batch["members"]:
-        if refined_path(results, stem, batch["rhash"]).is_file():
+        if layout.level_pair(batch["lkey"], stem).is_file():
             done.append({"stem": stem, "computed": False})
             continue
-        r = refine_pair(config, manifest, stem, level, results)
+        r = level_pair(settings, manifest, stem, level, energies, layout)
         done.append({"stem": stem, "computed": True, "status": r["status"], "wall_time_s": r.get("wall_time_s")})
-        log.info("refined %s at %s: %s %s (%.1f s)", stem, r["level"], r["status"], r.get("message", ""),
+        log.info("%s %s at %s: %s %s (%.1f s)", level.name, stem, r["level"], r["status"], r.get("message", ""),
                  r.get("wall_time_s", 0.0))
-    summary = _batch_summary("refine", bid, done, t0) | {"rhash": batch["rhash"]}
+    summary = _batch_summary("level", bid, done, t0) | {"level": level.name, "lkey": batch["lkey"]}
     write_json(summary, out_path)
     return summary
 
 
-def load_refined(manifest: dict, config: dict, results="results", shortlist_path=None) -> dict:
-    """Refined pair results of the run, by transition stem (a missing or unreadable file is
-    simply not there; its rows keep their GFN2-xTB values)."""
-    _, read_json = _json()
-    rows = config["refine"]["rows"]
-    if rows == "none":
-        return {}
-    stems = (refined_pairs(manifest, config) if rows == "all"
-             else read_json(shortlist_path)["pairs"] if shortlist_path and Path(shortlist_path).is_file() else [])
-    rhash = cfg.refine_hash(config)
-    out = {}
-    for stem in stems:
-        try:
-            out[stem] = read_json(refined_path(results, stem, rhash))
-        except (FileNotFoundError, ValueError):
-            continue
-    return out
-
-
 # ----------------------------------------------------------------- ranking
 
-def load_computed(manifest: dict, results="results"):
-    """Every result file the manifest names; a missing or unreadable one becomes a status."""
+def _load(path, what: str) -> dict:
+    """A result file, or a status saying why it cannot be read."""
+    try:
+        return read_json(path)
+    except FileNotFoundError:
+        return {"status": "missing", "message": f"no {what} file {Path(path).name}", "sites": {}}
+    except ValueError as exc:
+        return {"status": "corrupt_result", "message": f"{Path(path).name} unreadable: {exc}", "sites": {}}
+
+
+def load_computed(manifest: dict, settings: cfg.Settings, layout: Layout, shortlist_path=None):
+    """Every result file the run needs: structures, transition structures, dienophiles, and
+    each priced level's pair results (a pair that level does not compute is left out; one
+    that is missing or unreadable carries its status)."""
+    shortlist_path = Path(shortlist_path or layout.shortlist)
     from .ranking import Computed
-    _, read_json = _json()
-
-    def load(path, what):
-        try:
-            return read_json(path)
-        except FileNotFoundError:
-            return {"status": "missing", "message": f"no {what} file {Path(path).name}", "sites": {}}
-        except ValueError as exc:
-            return {"status": "corrupt_result", "message": f"{Path(path).name} unreadable: {exc}",
-                    "sites": {}}
-
-    structures = {k: load(structure_path(results, k), "result") for k in manifest["structures"]}
-    transitions = {s: load(transition_path(results, s), "transition-structure")
-                   for s in manifest["transitions"]}
+    structures = {k: _load(layout.structure(k), "result") for k in manifest["structures"]}
+    transitions = {s: _load(layout.transition(s), "transition-structure") for s in manifest["transitions"]}
     dienophiles = {}
     for dhash in manifest["dienophiles"]:
-        d = load(dienophile_path(results, dhash), "dienophile")
+        d = _load(layout.dienophile(dhash), "dienophile")
         if "lumo_eV" in d:
             dienophiles[dhash] = d
-    return Computed(structures, transitions, dienophiles)
-
-
-def rank_tables(manifest: dict, computed, config: dict):
-    """Fit on the reference records, predict every site, pick each row's best:
-    (ranking table, sites table, model summary, reference table).
-
-    The GFN2-xTB model is always fitted (it ranks when the refinement is off, and a row
-    whose refinement failed); with refined results present, a model of the same form is
-    fitted on the refined reference barriers and ranks every site it can price. The
-    summary is the ranking model's, with the GFN2-xTB one under 'fast' beside it."""
-    from . import ranking
-    computed.barrier = config["refine"]["barrier"]
-    fit, summary, ref_table = ranking.fit_reference(manifest["reference_records"], computed, config,
-                                                    config["dienophile"])
-    sites = ranking.site_table(manifest["records"], computed)
-    if len(sites):
-        sites = ranking.predict_sites(sites, fit, config, summary, "xtb")
-    refined_label = None
-    if any(r.get("status") == "ok" for r in computed.refined.values()):
-        try:
-            rfit, rsummary, rref = ranking.fit_reference(
-                manifest["reference_records"], computed, config, config["dienophile"], suffix="_refined")
-        except ValueError as exc:
-            summary = summary | {"refined_error": str(exc)}
+    levels = {}
+    for level in settings.priced_levels:
+        if settings.rows_for(level) == "all":
+            stems = list(manifest["transitions"])
         else:
-            keep = [c for c in ("used", "reason", "log10_k_cv", "log10_k_fit", "log10_k_nested_cv")
-                    if c in rref]
-            ref_table = ref_table.join(rref[keep].add_suffix("_refined"))
-            if len(sites):
-                sites = ranking.predict_sites(sites, rfit, config, rsummary, "refined")
-            refined_label = rsummary["level"]
-            summary = rsummary | {"fast": summary, "barrier_kind": config["refine"]["barrier"]}
+            stems = read_json(shortlist_path)["pairs"] if shortlist_path.is_file() else []
+        levels[level.name] = {s: _load(layout.level_pair(level.key(), s), f"{level.name} result") for s in stems}
+    return Computed(structures, transitions, dienophiles, levels)
+
+
+def rank_tables(manifest: dict, computed, settings: cfg.Settings):
+    """Fit each ranking level's model on the reference records, predict every site at every
+    level, rank each row at the first level with a prediction for it:
+    (ranking table, sites table, model summary, reference table)."""
+    from . import ranking
+    sites = ranking.site_table(manifest["records"], computed, settings)
+    ref_table = ranking.reference_rows(manifest["reference_records"], computed, settings)
+    models = {}
+    for level in settings.ranking_levels:
+        try:
+            fit, summary, ref_level = ranking.fit_reference(ref_table, settings, level)
+        except ValueError as exc:
+            models[level.name] = {"level": level.label(), "name": level.name, "error": str(exc)}
+            continue
+        models[level.name] = summary
+        ref_table = ref_table.join(ref_level)
+        if len(sites):
+            sites = ranking.predict_sites(sites, fit, settings, summary, level)
+    fitted = [lv.name for lv in settings.ranking_levels if "error" not in models[lv.name]]
+    summary = {"ranking_levels": [lv.name for lv in settings.ranking_levels],
+               "ranking_level": fitted[0] if fitted else None, "rows": settings.rows, "levels": models,
+               "run_dienophile": settings["dienophile"], "interval": settings["model"]["interval"]}
     if len(sites):
-        rows = config["refine"]["rows"]
-        sites = ranking.choose_level(sites, refined_label, "" if rows in ("all", "none") else (
-            f"ranked at GFN2-xTB: not among the {rows} best GFN2-xTB rows that refine.rows prices"))
-    summary |= {"ranking_level": refined_label or ranking.FAST_LEVEL, "refine_rows": config["refine"]["rows"]}
-    table = ranking.rank_table(manifest["records"], computed, sites)
-    table, bench = ranking.bench_view(table, summary, ref_table, config.get("anchor"))
+        sites = ranking.choose_level(sites, settings, models)
+    table = ranking.rank_table(manifest["records"], computed, sites, settings)
+    table, bench = ranking.bench_view(table, summary, ref_table, settings["anchor"])
     return table, sites, summary | bench, ref_table
 
 
-def rank(config: dict, manifest_path, out_dir, results="results", shortlist_path=None) -> list[str]:
+def rank(manifest_path, out_dir, results="results") -> list[str]:
     from . import outputs
-    _, read_json = _json()
-    config = cfg.validate(config)
+    layout = Layout(results)
     manifest = read_json(manifest_path)
-    computed = load_computed(manifest, results)
-    computed.refined = load_refined(manifest, config, results, shortlist_path)
-    table, sites, summary, ref_table = rank_tables(manifest, computed, config)
-    out_dir = Path(out_dir)
-    outputs.write_table(table, out_dir / "ranking.csv")
-    outputs.write_table(sites, out_dir / "sites.csv")
-    outputs.write_table(ref_table, out_dir / "reference_fit.csv")
+    settings = settings_of(manifest)
+    computed = load_computed(manifest, settings, layout)
+    table, sites, summary, ref_table = rank_tables(manifest, computed, settings)
+    out = Layout(out_dir)
+    outputs.write_table(table, out.output("ranking.csv"))
+    outputs.write_table(sites, out.output("sites.csv"))
+    outputs.write_table(ref_table, out.output("reference_fit.csv"))
     run_dph = computed.dienophiles.get(manifest["run_dienophile"]["dhash"], {})
     summary |= {"reference_file": manifest["reference"], "reference_sha256": manifest["reference_sha256"],
                 "library_file": manifest["library"], "library_sha256": manifest["library_sha256"],
                 "seed": manifest["seed"], "settings": manifest["settings"],
-                "temperature_K": config["temperature_K"], "solvent": config["solvent"],
-                "transition_state": config["transition_state"],
+                "temperature_K": settings["temperature_K"], "solvent": settings["solvent"],
+                "backend_note": manifest.get("backend_note", ""),
                 "dienophile": {k: run_dph.get(k) for k in ("smiles", "homo_eV", "lumo_eV", "reactive_bond")},
-                "config": config}     # the run's whole config: `dienes look` predicts with the same
-    outputs.write_model(summary, out_dir / "model.json")
-    return outputs.summary_lines(table, out_dir, summary)
+                "config": settings.as_config()}     # the run's whole config: `dienes look` predicts with the same
+    outputs.write_model(summary, out.output("model.json"))
+    return outputs.summary_lines(table, out.root, summary)
 
 
-def rank_in_process(config: dict, cache_dir=None, reference_ids=None, manifest_path=None):
-    """Rank config['library'] without Snakemake, one structure after another.
+def plan_steps(manifest_path, results="results"):
+    """The run's steps in the workflow's order, as (name, call) pairs: what the rules run, for
+    a run without Snakemake. Read lazily: a step's list depends on the steps before it."""
+    layout = Layout(results)
+    manifest = read_json(manifest_path)
+    settings = settings_of(manifest)
+    shortlist_path = Path(manifest_path).with_name("shortlist.json")
+    for bid in manifest["batches"]["structures"]:
+        yield "structures", lambda bid=bid: compute_structures(manifest_path, bid, layout.batch("structures", bid),
+                                                               results)
+    for dhash in manifest["dienophiles"]:
+        if not layout.dienophile(dhash).is_file():
+            yield "dienophile", lambda dhash=dhash: compute_dienophile(manifest_path, dhash, layout.dienophile(dhash))
+    for bid in manifest["batches"]["transition"]:
+        yield "transition", lambda bid=bid: compute_transitions(manifest_path, bid, layout.batch("transition", bid),
+                                                                results)
+    plans = [(manifest_path, manifest["batches"]["level"])]
+    if any(settings.rows_for(lv) != "all" for lv in settings.priced_levels):
+        plans.append((shortlist_path, None))
+    for plan_path, batches in plans:
+        if batches is None:
+            yield "shortlist", lambda: shortlist(manifest_path, shortlist_path, results)
+            batches = read_json(shortlist_path)["batches"]
+        for bid, batch in batches.items():
+            for dhash in batch["dienophiles"]:
+                path = layout.level_dienophile(batch["lkey"], dhash)
+                if not path.is_file():
+                    yield "level dienophile", lambda b=batch, d=dhash, p=path: level_dienophile(
+                        manifest_path, b["lkey"], d, p, results)
+            yield "level", lambda bid=bid, p=plan_path: compute_level_pairs(manifest_path, p, bid,
+                                                                            layout.batch("level", bid), results)
 
-    Result files are read from / written to `cache_dir` when given (the same
-    layout as the workflow's results/). `reference_ids`, when given, keeps only
-    those reference rows in the fit (for leave-out checks); `manifest_path` keeps the
-    manifest elsewhere (so that a workflow's own results/manifest.json is left alone).
+
+def rank_in_process(settings, cache_dir=None, reference_ids=None, manifest_path=None):
+    """Rank settings['library'] without Snakemake: the same plan as the workflow, one step
+    after another.
+
+    Result files are read from / written to `cache_dir` when given (the same layout as the
+    workflow's results/). `reference_ids`, when given, keeps only those reference rows in the
+    fit (for leave-out checks); `manifest_path` keeps the manifest elsewhere (so that a
+    workflow's own results/manifest.json is left alone).
     Returns (ranking DataFrame, sites DataFrame, model summary dict).
     """
     import tempfile
-    config = cfg.validate(config)
-    tmp = tempfile.TemporaryDirectory()
-    cache = Path(cache_dir) if cache_dir else Path(tmp.name)
-    manifest_path = Path(manifest_path) if manifest_path else cache / "manifest.json"
-    manifest = prepare(config, manifest_path, results=cache)
-    if reference_ids is not None:
-        manifest["reference_records"] = [r for r in manifest["reference_records"]
-                                         if r["id"] in set(reference_ids)]
-    for bid in manifest["batches"]["structures"]:
-        compute_structures(config, manifest_path, bid, batch_path(cache, "structures", bid), cache)
-    for dhash, smiles in manifest["dienophiles"].items():
-        if not dienophile_path(cache, dhash).is_file():
-            dienophile(config, smiles, dienophile_path(cache, dhash))
-    for bid in manifest["batches"]["transition"]:
-        compute_transitions(config, manifest_path, bid, batch_path(cache, "transition", bid), cache)
-    computed = load_computed(manifest, cache)
-    if config["refine"]["rows"] != "none":
-        from .refine import level_from_config
-        _, read_json = _json()
-        rows = config["refine"]["rows"]
-        stems = refined_pairs(manifest, config, None if rows == "all" else rank_tables(manifest, computed, config)[0])
-        rhash = cfg.refine_hash(config)
-        level = level_from_config(config["refine"])
-        for stem in stems:
-            dhash = manifest["transitions"][stem]["dhash"]
-            if not refined_dienophile_path(cache, dhash, rhash).is_file():
-                refine_dienophile(config, dienophile_path(cache, dhash), refined_dienophile_path(cache, dhash, rhash))
-            if not refined_path(cache, stem, rhash).is_file():
-                refine_pair(config, manifest, stem, level, cache)
-        computed.refined = {s: read_json(refined_path(cache, s, rhash)) for s in stems}
-    table, sites, summary, _ = rank_tables(manifest, computed, config)
-    tmp.cleanup()
+    settings = cfg.resolve(settings)
+    with tempfile.TemporaryDirectory() as tmp:
+        cache = Path(cache_dir) if cache_dir else Path(tmp)
+        manifest_path = Path(manifest_path) if manifest_path else cache / "manifest.json"
+        manifest = prepare(settings, manifest_path, results=cache)
+        if reference_ids is not None:
+            manifest["reference_records"] = [r for r in manifest["reference_records"]
+                                             if r["id"] in set(reference_ids)]
+            write_json(manifest, manifest_path)
+        for _, step in plan_steps(manifest_path, cache):
+            step()
+        computed = load_computed(manifest, settings, Layout(cache), manifest_path.with_name("shortlist.json"))
+        table, sites, summary, _ = rank_tables(manifest, computed, settings)
     return table, sites, summary
 
 
 # ------------------------------------------------------------------ report
 
-def profiles_for_report(table, results: dict, config: dict, cache_dir, n: int = 3) -> list:
-    """Relaxed torsion profiles (15 deg steps) of the top and bottom ranked dienes
-    whose best site rotates freely (acyclic): ring-bound sites have no profile."""
+def torsion_profiles(manifest_path, ranking_path, out_path, results="results", n: int = PROFILES_SHOWN) -> dict:
+    """Relaxed torsion profiles (15 deg steps) of the top and bottom ranked dienes whose best
+    site rotates freely (acyclic): ring-bound sites have no profile. Each profile is kept per
+    structure and site, so a rerun computes only new ones."""
     import numpy as np
+    from . import outputs
     from .backends import Molecule
-    from .pipeline import backend_settings
     from .torsion import torsion_profile
-    write_json, read_json = _json()
-    st = cfg.structure_settings(config)
+    layout = Layout(results)
+    manifest = read_json(manifest_path)
+    settings = settings_of(manifest, computes_structures=True)
+    table = outputs.read_table(ranking_path)
     ranked = table[table["rank"].notna() & (table["site_kind"] == "acyclic")].sort_values("rank")
     picks = list(ranked.head(n).itertuples()) + [r for r in ranked.tail(n).itertuples()
                                                  if r.rank not in set(ranked.head(n)["rank"])]
     out = []
     for r in picks:
-        res = results[r.structure_key]
-        path = Path(cache_dir) / f"{r.structure_key}__{r.best_site}.json"
+        path = layout.profile(r.structure_key, r.best_site)
         if path.is_file():
             prof = read_json(path)
         else:
+            geo = read_json(layout.structure(r.structure_key))["geometry"]
             atoms = [int(x) - 1 for x in str(r.best_site).split("-")]
-            geo = res["geometry"]
             start = geo["planar_s_cis_A"].get(r.best_site, geo["minimum_A"])
             a, e = torsion_profile(geo["numbers"], np.asarray(start),
-                                   Molecule(geo["numbers"], backend_settings(st)), atoms, step_deg=15.0)
+                                   Molecule(geo["numbers"], settings.backend_settings()), atoms, step_deg=15.0)
             prof = {"dihedral_deg": a.tolist(), "energy_kJmol": np.round(e, 3).tolist()}
             write_json(prof, path)
-        out.append((f"#{int(r.rank)} {r.id}", np.array(prof["dihedral_deg"]), np.array(prof["energy_kJmol"])))
-    return out
+        out.append({"label": f"#{int(r.rank)} {r.id}"} | prof)
+    summary = {"profiles": out}
+    write_json(summary, out_path)
+    return summary
 
 
-def report(config: dict, manifest_path, out_dir, results="results") -> dict:
+def report(manifest_path, out_dir, profiles_path, results="results") -> dict:
     """report.html and dienes.sdf from a finished ranking."""
     import pandas as pd
     from . import outputs
     from . import report as rpt
-    _, read_json = _json()
-    config = cfg.validate(config)
-    out_dir = Path(out_dir)
+    layout, out = Layout(results), Layout(out_dir)
     manifest = read_json(manifest_path)
-    computed = load_computed(manifest, results)
-    table = outputs.read_table(out_dir / "ranking.csv")
-    sites = pd.read_csv(out_dir / "sites.csv") if (out_dir / "sites.csv").stat().st_size > 1 else pd.DataFrame()
-    reference = pd.read_csv(out_dir / "reference_fit.csv")
-    model = read_json(out_dir / "model.json")
-    profiles = profiles_for_report(table, computed.structures, config, out_dir / "profiles")
+    settings = settings_of(manifest)
+    computed = load_computed(manifest, settings, layout)
+    table = outputs.read_table(out.output("ranking.csv"))
+    sites_path = out.output("sites.csv")
+    sites = pd.read_csv(sites_path) if sites_path.stat().st_size > 1 else pd.DataFrame()
+    reference = pd.read_csv(out.output("reference_fit.csv"))
+    model = read_json(out.output("model.json"))
+    profiles = read_json(profiles_path)["profiles"]
     versions = next((r.get("versions") for r in computed.structures.values() if r.get("versions")), {})
     text = rpt.build(table, sites, model, reference, manifest["settings"] | {"seed": manifest["seed"]},
-                     versions, profiles, config)
-    rpt.write(out_dir / "report.html", text)
-    n_sdf = outputs.write_sdf(table, computed, out_dir / "dienes.sdf")
-    return {"report": str(out_dir / "report.html"), "sdf": str(out_dir / "dienes.sdf"), "sdf_records": n_sdf}
+                     versions, profiles, settings)
+    rpt.write(out.output("report.html"), text)
+    n_sdf = outputs.write_sdf(table, computed, settings, out.output("dienes.sdf"))
+    return {"report": str(out.output("report.html")), "sdf": str(out.output("dienes.sdf")), "sdf_records": n_sdf}

@@ -1,5 +1,16 @@
-"""Run settings: read and validate the config, derive the per-structure settings
-and the hash that names per-structure result files."""
+"""Run settings: the config validated once, at the edge (Snakefile, command line, Python
+API), into a read-only :class:`Settings` that every step receives. It knows the named
+levels of theory, which of them ranks, and the hashes that name result files.
+
+A level is named in the config's ``levels`` mapping and chosen by name in ``ranking``:
+
+- the one ``program: xtb`` level places every atom (conformers, planar s-cis,
+  transition structures) and gives its own barriers;
+- every ``program: pyscf`` level prices those structures with single points.
+
+``ranking.levels`` lists the levels that rank, in order: each row is ranked at the
+first level that has a prediction for it and the rest are shown beside it.
+"""
 
 from __future__ import annotations
 
@@ -7,7 +18,11 @@ import copy
 import hashlib
 import json
 import logging
+from collections.abc import Mapping
+from dataclasses import dataclass
+from functools import lru_cache
 from pathlib import Path
+from types import MappingProxyType
 
 import yaml
 from jsonschema import Draft202012Validator, validators
@@ -17,13 +32,23 @@ from .paths import workflow_root
 # Bump when a change in the science changes per-structure numbers: old result
 # files then stop matching and are recomputed.
 SCIENCE_VERSION = 4
-# Bump when a change in the pricing at the refined level changes its numbers.
-REFINE_VERSION = 4
+# Bump when a change in the single-point pricing at a level changes its numbers.
+PRICING_VERSION = 4
 
 SCHEMA_PATH = workflow_root() / "config" / "schema.yaml"
 
 # keys that change a per-structure result (the rest only change ranking and report)
 STRUCTURE_KEYS = ("temperature_K", "solvent", "backend", "seed", "conformers", "optimisation")
+BARRIER_KINDS = ("free_energy", "electronic")
+
+# config keys of earlier versions, each with what replaced it
+REPLACED_KEYS = {
+    "refine": "refine was replaced by levels (each level of theory by name, e.g. levels: {dft: {program: "
+              "pyscf, method: b3lyp, basis: def2-svp, barrier: free_energy}}) and ranking (levels: [dft, gfn2] "
+              "ranks at dft and falls back to gfn2; [gfn2] is the quick screen; rows: all or N)",
+    "backend": "backend was replaced by levels: {gfn2: {program: xtb, backend: tblite}} (the GFN2-xTB level's "
+               "backend)",
+}
 
 
 class ConfigError(ValueError):
@@ -42,28 +67,18 @@ def _with_defaults(validator_class):
     return validators.extend(validator_class, {"properties": set_defaults})
 
 
+@lru_cache(maxsize=4)
+def _schema_text(path: str) -> str:
+    return Path(path).read_text()
+
+
 def load_schema(path=SCHEMA_PATH) -> dict:
-    return yaml.safe_load(Path(path).read_text())
-
-
-_FALLBACK_SAID = []
-
-
-def _backend_fallback(cfg: dict) -> None:
-    """xtb-python has wheels up to Python 3.11: where it is missing and tblite is
-    present, tblite (the same GFN2-xTB Hamiltonian) is used, said once per process."""
-    from .backends import available
-    if cfg.get("backend") == "xtb-python" and not available("xtb-python") and available("tblite"):
-        cfg["backend"] = "tblite"
-        if not _FALLBACK_SAID:
-            _FALLBACK_SAID.append(True)
-            logging.getLogger("dienes").warning(
-                "backend xtb-python is not installed for this Python; using tblite (same GFN2-xTB)")
+    return yaml.safe_load(_schema_text(str(path)))
 
 
 def _coerce(value, schema: dict):
     """Strings where the schema wants a number or a flag become one: Snakemake's
-    --config hands nested values over as text (refine={top: 10} gives '10')."""
+    --config hands nested values over as text (ranking={rows: 10} gives '10')."""
     kind = schema.get("type")
     if isinstance(value, dict) and kind == "object":
         props = schema.get("properties", {})
@@ -83,41 +98,9 @@ def _coerce(value, schema: dict):
     return value
 
 
-def validate(config: dict, schema_path=SCHEMA_PATH) -> dict:
-    """A validated copy of `config` with schema defaults filled in."""
-    cfg = _coerce(copy.deepcopy(config), load_schema(schema_path))
-    if isinstance(cfg.get("refine"), dict) and "top" in cfg["refine"]:
-        raise ConfigError("invalid configuration: refine/top was replaced by refine/rows: all (the default: "
-                          "every diene at the refined level), none (GFN2-xTB only) or N (the N best by "
-                          "GFN2-xTB)")
-    errors = sorted(_with_defaults(Draft202012Validator)(load_schema(schema_path)).iter_errors(cfg),
-                    key=lambda e: list(e.path))
-    if errors:
-        lines = [f"{'/'.join(map(str, e.path)) or '(top)'}: {e.message}" for e in errors]
-        raise ConfigError("invalid configuration: " + "; ".join(lines))
-    _backend_fallback(cfg)
-    return cfg
-
-
-def load(path) -> dict:
-    return validate(yaml.safe_load(Path(path).read_text()) or {})
-
-
-def structure_settings(config: dict) -> dict:
-    """The part of the config a per-structure computation depends on."""
-    out = {k: copy.deepcopy(config[k]) for k in STRUCTURE_KEYS}
-    out["science_version"] = SCIENCE_VERSION
-    return out
-
-
 def settings_hash(settings: dict) -> str:
     blob = json.dumps(settings, sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(blob.encode()).hexdigest()[:10]
-
-
-def structure_key(inchikey: str, settings: dict) -> str:
-    """File-name key of one structure under one set of settings."""
-    return f"{inchikey}_{settings_hash(settings)}"
 
 
 def canonical_smiles(smiles: str) -> str:
@@ -127,20 +110,260 @@ def canonical_smiles(smiles: str) -> str:
     return Chem.MolToSmiles(mol) if mol is not None else smiles
 
 
-def dienophile_hash(config: dict, smiles: str) -> str:
-    """Names the result file of one dienophile under the per-structure settings."""
-    return settings_hash(structure_settings(config) | {"dienophile": canonical_smiles(smiles)})
+def _given(value):
+    return None if value in (None, "", "none") else value
 
 
-def transition_hash(config: dict, dienophile_smiles: str) -> str:
-    """Names transition-structure result files: per-structure settings, the
-    transition-state settings and the dienophile."""
-    return settings_hash(structure_settings(config) | {"transition_state": config["transition_state"],
-                                                       "dienophile": canonical_smiles(dienophile_smiles)})
+def _thaw(value):
+    if isinstance(value, Mapping):
+        return {k: _thaw(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_thaw(v) for v in value]
+    return value
 
 
-def refine_hash(config: dict) -> str:
-    """Names the folder of refined results: the level's settings, code defaults included
-    (which rows are refined does not change a priced number)."""
-    from .refine import level_settings
-    return settings_hash({"level": level_settings(config["refine"]).as_dict(), "version": REFINE_VERSION})
+def _freeze(value):
+    if isinstance(value, Mapping):
+        return MappingProxyType({k: _freeze(v) for k, v in value.items()})
+    if isinstance(value, (list, tuple)):
+        return tuple(_freeze(v) for v in value)
+    return value
+
+
+@dataclass(frozen=True)
+class Level:
+    """One named level of theory of a run."""
+
+    name: str
+    program: str                 # "xtb" (places the atoms) or "pyscf" (single points)
+    options: tuple               # ((key, value), ...) as validated, defaults filled in
+
+    @property
+    def places_atoms(self) -> bool:
+        return self.program == "xtb"
+
+    def option(self, key, default=None):
+        return dict(self.options).get(key, default)
+
+    @property
+    def barrier(self) -> str:
+        """Which barrier ranks at this level: free_energy or electronic (the located
+        GFN2-xTB saddle gives an electronic barrier)."""
+        return "electronic" if self.places_atoms else self.option("barrier", "free_energy")
+
+    def dft_settings(self):
+        from .backends import DFTSettings
+        o = dict(self.options)
+        extra = {k: o[k] for k in ("grid_level", "density_fit") if k in o}
+        return DFTSettings(method=o["method"], basis=o["basis"], dispersion=_given(o.get("dispersion")),
+                           solvent=_given(o.get("solvent")), **extra)
+
+    def label(self) -> str:
+        """The level as a chemist writes it: GFN2-xTB, B3LYP/def2-SVP, ..."""
+        return "GFN2-xTB" if self.places_atoms else self.dft_settings().label()
+
+    def hash(self) -> str:
+        """Names the folder of this level's priced results: the settings that change a priced
+        number, code defaults included (the barrier kind and which rows are priced do not)."""
+        if self.places_atoms:
+            return ""
+        return settings_hash({"level": self.dft_settings().as_dict(), "version": PRICING_VERSION})
+
+    def key(self) -> str:
+        """'<name>-<hash>': the folder of its results under results/levels/."""
+        return f"{self.name}-{self.hash()}"
+
+    def energy_backend(self, threads: int | None = None):
+        """The object that computes energies at this level (dienes.backends)."""
+        from .backends import DFTLevel
+        if self.places_atoms:
+            raise ValueError(f"level {self.name} places the atoms; its barriers come from the transition step")
+        return DFTLevel(self.dft_settings(), threads)
+
+
+class Settings(Mapping):
+    """The validated config of a run, read-only (mappings come back as read-only views,
+    lists as tuples), with its levels and the hashes that name result files."""
+
+    __slots__ = ("_data", "backend_note")
+
+    def __init__(self, data: dict, backend_note: str = ""):
+        object.__setattr__(self, "_data", _freeze(data))
+        object.__setattr__(self, "backend_note", backend_note)
+
+    def __setattr__(self, name, value):
+        raise AttributeError("Settings are read-only: build new ones with replace()")
+
+    def __getitem__(self, key):
+        return self._data[key]
+
+    def __iter__(self):
+        return iter(self._data)
+
+    def __len__(self):
+        return len(self._data)
+
+    def __repr__(self):
+        return f"Settings({self.as_config()!r})"
+
+    def as_config(self) -> dict:
+        """A plain, JSON-ready copy (what the manifest records and model.json keeps)."""
+        return _thaw(self._data)
+
+    def __or__(self, changes: Mapping) -> "Settings":
+        """settings | {key: value}: new settings with those top-level keys changed."""
+        return self.replace(**changes)
+
+    def replace(self, **changes) -> "Settings":
+        """New settings with some top-level keys changed, validated again (no backend fallback:
+        the one recorded here stays)."""
+        return resolve(self.as_config() | changes, fallback=False)
+
+    # ------------------------------------------------------------ levels
+    @property
+    def levels(self) -> dict[str, Level]:
+        return {name: Level(name, spec["program"], tuple(sorted((k, v) for k, v in spec.items() if k != "program")))
+                for name, spec in self._data["levels"].items()}
+
+    @property
+    def placing(self) -> Level:
+        """The GFN2-xTB level: it places every atom."""
+        return next(lv for lv in self.levels.values() if lv.places_atoms)
+
+    @property
+    def ranking_levels(self) -> list[Level]:
+        """The levels that rank, in order: a row is ranked at the first with a prediction."""
+        levels = self.levels
+        return [levels[n] for n in self._data["ranking"]["levels"]]
+
+    @property
+    def priced_levels(self) -> list[Level]:
+        """The single-point levels of the ranking (the ones whose results are computed)."""
+        return [lv for lv in self.ranking_levels if not lv.places_atoms]
+
+    @property
+    def rows(self):
+        """Rows the first ranking level computes: 'all', or N (the N best at the next level)."""
+        return self._data["ranking"]["rows"]
+
+    def rows_for(self, level: Level):
+        """'all', or N where `level` is the first ranking level and ranking.rows is N."""
+        first = self.ranking_levels[0]
+        return self.rows if level.name == first.name else "all"
+
+    # ----------------------------------------------------- GFN2-xTB, hashes
+    @property
+    def backend(self) -> str:
+        return self.placing.option("backend", "xtb-python")
+
+    def backend_settings(self):
+        from .backends import Settings as BackendSettings
+        return BackendSettings(name=self.backend, solvent=_given(self._data["solvent"]))
+
+    def require_backend(self) -> None:
+        """Stop with a clear message where this process cannot run the run's recorded backend
+        (instead of computing under another backend's hash)."""
+        from .backends import BackendError, available
+        if not available(self.backend):
+            raise BackendError(
+                f"this run's results are recorded for the GFN2-xTB backend {self.backend}, which this Python "
+                f"cannot import; install it here, or rerun with levels: {{{self.placing.name}: {{backend: "
+                f"{'tblite' if self.backend == 'xtb-python' else 'xtb-python'}}}}} (a new set of results)")
+
+    def structure_settings(self) -> dict:
+        """The part of the config a per-structure computation depends on."""
+        out = {k: _thaw(self._data[k]) for k in STRUCTURE_KEYS if k != "backend"}
+        out["backend"] = self.backend
+        out["science_version"] = SCIENCE_VERSION
+        return out
+
+    def structure_key(self, inchikey: str) -> str:
+        """File-name key of one structure under these settings."""
+        return f"{inchikey}_{settings_hash(self.structure_settings())}"
+
+    def dienophile_hash(self, smiles: str) -> str:
+        """Names the result file of one dienophile under the per-structure settings."""
+        return settings_hash(self.structure_settings() | {"dienophile": canonical_smiles(smiles)})
+
+    def transition_hash(self, dienophile_smiles: str) -> str:
+        """Names transition-structure result files: per-structure settings, the
+        transition-state settings and the dienophile."""
+        return settings_hash(self.structure_settings() | {"transition_state": _thaw(self._data["transition_state"]),
+                                                          "dienophile": canonical_smiles(dienophile_smiles)})
+
+    def config_hash(self, version: str = "") -> str:
+        """Changes with any setting: the whole-run steps (prepare, rank) rerun."""
+        return settings_hash(self.as_config() | {"version": version})
+
+
+def _level_defaults(levels: dict, schema: dict) -> None:
+    """Fill each level's defaults from the schema definition of its program."""
+    for spec in levels.values():
+        if isinstance(spec, dict) and spec.get("program") in ("xtb", "pyscf"):
+            props = schema["$defs"][f"{spec['program']}_level"]["properties"]
+            for key, sub in props.items():
+                if "default" in sub:
+                    spec.setdefault(key, copy.deepcopy(sub["default"]))
+
+
+def _check_levels(cfg: dict) -> list[str]:
+    levels, ranking = cfg["levels"], cfg["ranking"]
+    problems = []
+    xtb = [n for n, s in levels.items() if s.get("program") == "xtb"]
+    if len(xtb) != 1:
+        problems.append(f"levels: exactly one level with program: xtb places the atoms (found {len(xtb)})")
+    for name in ranking["levels"]:
+        if name not in levels:
+            problems.append(f"ranking/levels: {name!r} is not a level named under levels ({', '.join(levels)})")
+    if ranking["rows"] != "all":
+        first = levels.get(ranking["levels"][0], {})
+        if len(ranking["levels"]) < 2 or first.get("program") == "xtb":
+            problems.append("ranking/rows: N lets the first ranking level, a single-point one, compute only the N "
+                            "best rows at the next level: name two levels, the single-point level first")
+    return problems
+
+
+_FALLBACK_SAID = []
+
+
+def _backend_fallback(cfg: dict) -> str:
+    """xtb-python has wheels up to Python 3.11: where it is missing and tblite is present,
+    tblite (the same GFN2-xTB Hamiltonian) is recorded instead, once, at the edge."""
+    from .backends import available
+    placing = next(s for s in cfg["levels"].values() if s["program"] == "xtb")
+    if placing.get("backend") == "xtb-python" and not available("xtb-python") and available("tblite"):
+        placing["backend"] = "tblite"
+        note = "backend xtb-python is not installed for this Python; using tblite (same GFN2-xTB)"
+        if not _FALLBACK_SAID:
+            _FALLBACK_SAID.append(True)
+            logging.getLogger("dienes").warning(note)
+        return note
+    return ""
+
+
+def resolve(config: Mapping, fallback: bool = True) -> Settings:
+    """Validate a config (schema defaults filled in) into Settings. At the edge (`fallback`)
+    a GFN2-xTB backend this Python lacks is replaced by the other one, once, and recorded."""
+    if isinstance(config, Settings):
+        return config
+    cfg = _coerce(_thaw(config), load_schema())
+    for old, why in REPLACED_KEYS.items():
+        if old in cfg:
+            raise ConfigError(f"invalid configuration: {why}")
+    schema = load_schema()
+    if isinstance(cfg.get("levels"), dict):
+        _level_defaults(cfg["levels"], schema)
+    errors = sorted(_with_defaults(Draft202012Validator)(schema).iter_errors(cfg), key=lambda e: list(e.path))
+    if errors:
+        lines = [f"{'/'.join(map(str, e.path)) or '(top)'}: {e.message}" for e in errors]
+        raise ConfigError("invalid configuration: " + "; ".join(lines))
+    _level_defaults(cfg["levels"], schema)
+    problems = _check_levels(cfg)
+    if problems:
+        raise ConfigError("invalid configuration: " + "; ".join(problems))
+    note = _backend_fallback(cfg) if fallback else ""
+    return Settings(cfg, note)
+
+
+def load(path, fallback: bool = True) -> Settings:
+    return resolve(yaml.safe_load(Path(path).read_text()) or {}, fallback)

@@ -66,9 +66,7 @@ class Check:
 
 
 def default_settings(backend: str = "xtb-python") -> dict:
-    config = cfg.load(CONFIG_PATH)
-    config["backend"] = backend
-    return cfg.structure_settings(config)
+    return cfg.load(CONFIG_PATH, fallback=False).structure_settings() | {"backend": backend}
 
 
 def _butadiene(seed: int = 3):
@@ -177,7 +175,7 @@ def located_ts(smiles: str, dienophile: str, backend: str) -> dict:
     with the site's s-cis penalty added (kJ/mol)."""
     from .pipeline import backend_settings, compute_dienophile
     from .transition import transition_states_for_structure
-    config = cfg.load(CONFIG_PATH)
+    config = cfg.load(CONFIG_PATH, fallback=False)
     st = default_settings(backend)
     res = compute_structure(smiles, st)
     ts = transition_states_for_structure(res, compute_dienophile(dienophile, st), backend_settings(st),
@@ -297,37 +295,33 @@ def checks(backend: str = "xtb-python") -> list[Check]:
     ]
 
 
-def refined_checks(refine: dict) -> list[Check]:
-    """Checks of the density-functional refinement level (run by hand: minutes to hours)."""
-    key = _level_key(refine)
+def level_checks(level) -> list[Check]:
+    """Checks of a single-point level (a settings.Level; run by hand: minutes to hours)."""
+    key = level
     return [
         Check("butadiene planar s-cis above s-trans (refined)", "kJ/mol", SCIS_ABOVE_STRANS_KJMOL,
               "gauche - s-trans 12 kJ/mol (Martin-Drumel et al., ISMS 2019, doi:10.15278/isms.2019.TJ01) + planar s-cis - gauche "
               "0.4-0.8 kcal/mol (" + SZALAY_SOURCE + ")", 3.0,
-              lambda _: refined_butadiene(key)["scis_minus_strans"],
+              lambda _: level_butadiene(key)["scis_minus_strans"],
               why="3 kJ/mol, the combined uncertainty of the two parts (0.8 and 1.7 kJ/mol) doubled"),
         Check("butadiene s-trans -> gauche barrier (refined, on the GFN2-xTB scan)", "kJ/mol", 25.4,
               "Bock, George, Trachtman, Theor. Chim. Acta 1984, 64, 293 (computed)", 5.0,
-              lambda _: refined_butadiene(key)["barrier"], kind="known",
+              lambda _: level_butadiene(key)["barrier"], kind="known",
               why="known error, not tested: single points on the GFN2-xTB scan (geometries not relaxed at thi"
                   "s level) put the barrier top 7 kJ/mol high; no ranked number uses it (the s-cis penalty column stays at GFN2-xTB)"),
         Check("1,3-cyclohexadiene + ethylene barrier (refined)", "kJ/mol", CHD_ETHYLENE_DH_KJMOL,
               CHD_ETHYLENE_SOURCE, 20.0,
-              lambda _: refined_pair_barrier("C1=CCCC=C1", ETHYLENE, key),
+              lambda _: level_pair_barrier("C1=CCCC=C1", ETHYLENE, key),
               why="electronic barrier on GFN2-xTB geometries against an activation enthalpy: zero-point "
                   "and thermal terms alone move it by about 10 kJ/mol, and B3LYP barriers run about "
                   "13 kJ/mol high on the gas-phase set (docs/validation.md)"),
         Check("barrier, butadiene minus cyclopentadiene, maleic anhydride (refined)", "kJ/mol",
               3.13 * 5.80, "about three orders of magnitude with maleic anhydride (reference set, from "
               "memory): 3.13 log units x RT ln 10 at 303 K", 8.0,
-              lambda _: refined_pair_barrier("C=CC=C", MALEIC_ANHYDRIDE, key)
-              - refined_pair_barrier("C1=CCC=C1", MALEIC_ANHYDRIDE, key),
+              lambda _: level_pair_barrier("C=CC=C", MALEIC_ANHYDRIDE, key)
+              - level_pair_barrier("C1=CCC=C1", MALEIC_ANHYDRIDE, key),
               why="about 1.4 log units: the from-memory reference is sure of the order of magnitude"),
     ]
-
-
-def _level_key(refine: dict) -> tuple:
-    return tuple(sorted((k, v) for k, v in refine.items() if k != "rows"))
 
 
 def _any_backend() -> str:
@@ -336,11 +330,9 @@ def _any_backend() -> str:
 
 
 @functools.lru_cache(maxsize=4)
-def refined_butadiene(level_key: tuple) -> dict:
-    """Refined single points on the GFN2-xTB butadiene scan (kJ/mol)."""
-    from .backends import DFTLevel
-    from .refine import level_settings
-    level = DFTLevel(level_settings(dict(level_key)))
+def level_butadiene(level) -> dict:
+    """Single points at a level (a settings.Level) on the GFN2-xTB butadiene scan (kJ/mol)."""
+    level = level.energy_backend()
     _, numbers = _butadiene()
     _, _, geometries = butadiene_scan(_any_backend())
     e = np.array([level.energy(numbers, g).energy_kJmol for g in geometries])
@@ -349,36 +341,37 @@ def refined_butadiene(level_key: tuple) -> dict:
 
 
 @functools.lru_cache(maxsize=8)
-def refined_pair_barrier(smiles: str, dienophile: str, level_key: tuple) -> float:
-    """Refined barrier (kJ/mol) of a diene with a dienophile on the project's own structures."""
-    from .backends import DFTLevel
+def level_pair_barrier(smiles: str, dienophile: str, level) -> float:
+    """Electronic barrier (kJ/mol) at a level (a settings.Level) of a diene with a dienophile on
+    the project's own GFN2-xTB structures."""
     from .pipeline import backend_settings, compute_dienophile
-    from .refine import level_settings, price_dienophile, price_pair, price_structure
+    from .singlepoints import price_dienophile, price_pair, price_structure
     from .transition import transition_states_for_structure
-    level = DFTLevel(level_settings(dict(level_key)))
+    name, level = level.name, level.energy_backend()
     st = default_settings(_any_backend())
     res = compute_structure(smiles, st)
     dph = compute_dienophile(dienophile, st)
-    ts = transition_states_for_structure(res, dph, backend_settings(st), cfg.load(CONFIG_PATH)["transition_state"])
+    ts = transition_states_for_structure(res, dph, backend_settings(st), cfg.load(CONFIG_PATH, fallback=False)["transition_state"])
     out = price_pair(price_structure(res, level), ts, price_dienophile(dph, level), level)
     ok = [s["electronic_barrier_kJmol"] for s in out["sites"].values() if s["status"] == "ok"]
     if out["status"] != "ok" or not ok:
-        raise RuntimeError(f"{smiles}: refinement {out['status']}: {out['message']}")
+        raise RuntimeError(f"{smiles} at {name}: {out['status']}: {out['message']}")
     return float(min(ok))
 
 
-def demo_agreement(results_dir) -> list[tuple[str, float]]:
-    """GFN2-xTB against the refined level over a finished run's refined rows: how many,
-    Spearman of the two barrier orders and of the two rankings, largest rank change."""
+def demo_agreement(results_dir, level: str, other: str) -> list[tuple[str, float]]:
+    """Another ranking level against the ranking level over a finished run's rows ranked at
+    `level`: how many, Spearman of the two barrier orders and of the two rankings, largest
+    rank change (level and other are level names, e.g. dft and gfn2)."""
     import pandas as pd
     t = pd.read_csv(Path(results_dir) / "ranking.csv")
-    t = t[t["barrier_refined_kJmol"].notna() & t["rank"].notna() & t["rank_xtb"].notna()]
-    rho = stats.spearmanr(t["barrier_kJmol"], t["barrier_refined_kJmol"]).statistic
-    rho_rank = stats.spearmanr(t["rank"], t["rank_xtb"]).statistic
-    return [("rows ranked at the refined level", float(len(t))),
-            ("Spearman rho, GFN2-xTB barrier order against refined", float(rho)),
-            ("Spearman rho, GFN2-xTB ranking against the refined ranking", float(rho_rank)),
-            ("largest rank change between the levels", float((t["rank"] - t["rank_xtb"]).abs().max()))]
+    t = t[(t["level"] == level) & t["rank"].notna() & t[f"{other}_rank"].notna()]
+    rho = stats.spearmanr(t[f"{other}_barrier_kJmol"], t["barrier_kJmol"]).statistic
+    rho_rank = stats.spearmanr(t["rank"], t[f"{other}_rank"]).statistic
+    return [(f"rows ranked at {level}", float(len(t))),
+            (f"Spearman rho, {other} barrier order against {level}", float(rho)),
+            (f"Spearman rho, {other} ranking against the {level} ranking", float(rho_rank)),
+            ("largest rank change between the levels", float((t["rank"] - t[f"{other}_rank"]).abs().max()))]
 
 
 def backend_checks() -> list[Check]:
@@ -398,8 +391,8 @@ def run_all(backend: str = "xtb-python") -> list[tuple[Check, float]]:
     return [(c, float(c.observe({}))) for c in checks(backend) + backend_checks()]
 
 
-def run_refined(refine: dict) -> list[tuple[Check, float]]:
-    return [(c, float(c.observe({}))) for c in refined_checks(refine)]
+def run_level(level) -> list[tuple[Check, float]]:
+    return [(c, float(c.observe({}))) for c in level_checks(level)]
 
 
 def _fmt(x: float) -> str:
@@ -442,7 +435,7 @@ REFINED_HEADER = """
 ### The refined level on the project's own structures
 
 Regenerated by hand with `python -m dienes.validation --refined` (slow: minutes to an hour on
-2 cores); CI runs the refined path on a minimal basis instead (tests/test_refine.py,
+2 cores); CI runs the single-point path on a minimal basis instead (tests/test_singlepoints.py,
 tests/test_workflow.py).
 
 """
@@ -468,21 +461,22 @@ def replace_generated(old: str, block: str) -> str:
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__)
     ap.add_argument("--write", default=str(DOC_PATH))
-    ap.add_argument("--refined", action="store_true", help="also run the refined-level checks (slow)")
+    ap.add_argument("--refined", action="store_true",
+                    help="also run the checks of the first ranking level of the default config (slow)")
     ap.add_argument("--refined-results", default=None,
-                    help="results/ of a run ranked at the refined level: GFN2-xTB against refined")
+                    help="results/ of a run ranked at that level: the GFN2-xTB level against it")
     args = ap.parse_args(argv)
     old = Path(args.write).read_text() if Path(args.write).is_file() else ""
     block = HEADER + table(run_all()) + "\n"
     if args.refined:
-        from .refine import level_settings
-        refine = cfg.load(CONFIG_PATH)["refine"]
-        block += (REFINED_HEADER + f"Level: {level_settings(refine).label()}\n\n"
-                  + table(run_refined(refine)) + "\n")
+        settings = cfg.load(CONFIG_PATH, fallback=False)
+        level = settings.priced_levels[0]
+        block += (REFINED_HEADER + f"Level: {level.label()}\n\n" + table(run_level(level)) + "\n")
         if args.refined_results:
-            block += ("\nGFN2-xTB against the refined level over the rows of "
+            block += (f"\n{settings.placing.name} against {level.name} over the rows of "
                       f"`{Path(args.refined_results).name}`:\n\n| quantity | value |\n|---|---|\n"
-                      + "".join(f"| {k} | {_fmt(v)} |\n" for k, v in demo_agreement(args.refined_results)))
+                      + "".join(f"| {k} | {_fmt(v)} |\n"
+                                for k, v in demo_agreement(args.refined_results, level.name, settings.placing.name)))
     else:
         kept = generated_block(old)
         if REFINED_HEADER.strip().splitlines()[0] in kept:     # keep the last refined-level table

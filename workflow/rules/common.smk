@@ -1,5 +1,5 @@
-# Shared helpers: config validation, start-up checks and the manifest lookups.
-import json
+# Shared helpers: the settings validated once, start-up checks and the manifest lookups.
+# Paths come from dienes.layout, the same module the Python steps use.
 import sys
 from pathlib import Path
 
@@ -7,20 +7,30 @@ import dienes
 from dienes import runlock
 from dienes import run as dienes_run
 from dienes import settings as dienes_settings
+from dienes.layout import Layout, read_json
 from dienes.library import check_dienophile
 
-config.update(dienes_settings.validate(config))
+try:
+    # the edge: validated here once; a missing xtb-python is replaced by tblite in the main
+    # process only, and the manifest records what was decided for every job
+    SETTINGS = dienes_settings.resolve(config, fallback=workflow.is_main_process)
+except dienes_settings.ConfigError as _exc:
+    sys.exit(f"dienes: {_exc}")
+config.update(SETTINGS.as_config())
 _problem = check_dienophile(config["dienophile"])
 if _problem:
     sys.exit(f"dienes: dienophile {config['dienophile']!r}: {_problem}")
 
-MANIFEST = "results/manifest.json"
+L = Layout("results")
+MANIFEST = str(L.manifest)
+SHORTLIST = str(L.shortlist)
 if workflow.is_main_process:
     runlock.claim()
     # before Snakemake looks at the files: an unreadable result is moved aside, and a
     # manifest that counts a missing result as done is dropped, so both are computed again
     moved = runlock.quarantine_invalid(sorted(Path("results").glob("structures/*.json"))
-                                       + sorted(Path("results").glob("transition/*.json")))
+                                       + sorted(Path("results").glob("transition/*.json"))
+                                       + sorted(Path("results").glob("levels/*/pairs/*.json")))
     _stale = dienes_run.stale_manifest(MANIFEST)
     if dienes_run.drop_stale_batches() or moved or _stale:
         Path(MANIFEST).unlink(missing_ok=True)
@@ -28,11 +38,10 @@ if workflow.is_main_process:
 
 # any config change reruns the cheap whole-run steps (prepare, rank); per-structure
 # results are named by their own settings hash and are reused
-CONFIG_HASH = dienes_settings.settings_hash(config | {"version": dienes.__version__})
+CONFIG_HASH = SETTINGS.config_hash(dienes.__version__)
 
-
-# which rows are priced at the refined level: all (default), none, or the N best by GFN2-xTB
-REFINE_ROWS = config["refine"]["rows"]
+# ranking.rows N: the first ranking level computes only the rows the shortlist names
+NEEDS_SHORTLIST = any(SETTINGS.rows_for(level) != "all" for level in SETTINGS.priced_levels)
 
 
 # cheap whole-run steps stay on the submit host when a cluster executor is used
@@ -47,7 +56,7 @@ localrules:
 wildcard_constraints:
     bid=r"[0-9a-f]{12}",
     dhash=r"[0-9a-f]{10}",
-    rhash=r"[0-9a-f]{10}",
+    lkey=r"[a-z][a-z0-9]{0,15}-[0-9a-f]{10}",
 
 
 def manifest():
@@ -55,57 +64,60 @@ def manifest():
     path = checkpoints.prepare.get().output.manifest
     cache = manifest.__dict__.setdefault("cache", {})
     if path not in cache:
-        cache[path] = json.loads(Path(path).read_text())
+        cache[path] = read_json(path)
     return cache[path]
 
 
 def batch_flag(stage, bid):
-    return f"results/batches/{stage}/{bid}.json"
+    return str(L.batch(stage, bid))
 
 
-def get_dienophile_smiles(wildcards):
-    return manifest()["dienophiles"][wildcards.dhash]
+def level_plan() -> dict:
+    """Every batch of single points of this run: listed in the manifest (levels that compute
+    every row) and, with ranking.rows N, in the shortlist checkpoint."""
+    plan = dict(manifest()["batches"]["level"])
+    if NEEDS_SHORTLIST:
+        plan |= read_json(checkpoints.shortlist.get().output[0])["batches"]
+    return plan
 
 
 def get_transition_input(wildcards):
     batch = manifest()["batches"]["transition"][wildcards.bid]
     return ([batch_flag("structures", b) for b in batch["needs"]]
-            + [f"results/dienophiles/{d}.json" for d in batch["dienophiles"]])
+            + [str(L.dienophile(d)) for d in batch["dienophiles"]])
 
 
 def batch_runtime(stage, minutes_each):
     """Cluster runtime (minutes) of a batch job: minutes_each per member, at least 10."""
     def runtime(wildcards):
-        batch = (refine_plan() if stage == "refine" else manifest()["batches"][stage])[wildcards.bid]
+        batch = (level_plan() if stage == "level" else manifest()["batches"][stage])[wildcards.bid]
         members = batch["members"] if isinstance(batch, dict) else batch
         return max(10, minutes_each * len(members))
     return runtime
 
 
-def get_rank_input(wildcards):
+def get_computed_input(wildcards):
+    """The GFN2-xTB batches of the run and the single points every level computes for all rows."""
     m = manifest()
     return ([batch_flag("structures", b) for b in m["batches"]["structures"]]
             + [batch_flag("transition", b) for b in m["batches"]["transition"]]
-            + [f"results/dienophiles/{d}.json" for d in m["dienophiles"]])
+            + [str(L.dienophile(d)) for d in m["dienophiles"]]
+            + [batch_flag("level", b) for b in m["batches"]["level"]])
 
 
-def refine_plan() -> dict:
-    """The refine batches of this run: listed in the manifest (refine.rows: all), in the
-    shortlist checkpoint (refine.rows: N), or none."""
-    if REFINE_ROWS == "none":
-        return {}
-    if REFINE_ROWS == "all":
-        return manifest()["batches"]["refine"]
-    return json.loads(Path(checkpoints.shortlist.get().output[0]).read_text())["batches"]
+def get_level_plan_file(wildcards):
+    """Where a batch of single points is listed: the manifest, or the shortlist."""
+    return ancient(MANIFEST if wildcards.bid in manifest()["batches"]["level"] else SHORTLIST)
 
 
-def get_refine_input(wildcards):
-    batch = refine_plan()[wildcards.bid]
+def get_level_input(wildcards):
+    batch = level_plan()[wildcards.bid]
     return ([batch_flag("transition", b) for b in batch["needs"]]
-            + [f"results/refined/{batch['rhash']}/dienophiles/{d}.json" for d in batch["dienophiles"]])
+            + [str(L.level_dienophile(batch["lkey"], d)) for d in batch["dienophiles"]])
 
 
-def get_refined_input(wildcards):
-    """The refine batches the ranking waits for (and the shortlist, for refine.rows: N)."""
-    shortlist = [checkpoints.shortlist.get().output[0]] if REFINE_ROWS not in ("all", "none") else []
-    return shortlist + [batch_flag("refine", bid) for bid in refine_plan()]
+def get_rank_input(wildcards):
+    """Everything the ranking reads: the computed batches, and the shortlist's with ranking.rows N."""
+    extra = ([SHORTLIST] + [batch_flag("level", b) for b in level_plan() if b not in manifest()["batches"]["level"]]
+             if NEEDS_SHORTLIST else [])
+    return get_computed_input(wildcards) + extra

@@ -23,9 +23,7 @@ rule compute_dienophile:
     input:
         manifest=ancient(MANIFEST),
     output:
-        "results/dienophiles/{dhash}.json",
-    params:
-        smiles=get_dienophile_smiles,
+        str(L.dienophile()),
     conda:
         "../envs/dienes.yaml"
     log:

@@ -2,15 +2,13 @@ rule rank:
     input:
         manifest=MANIFEST,
         computed=get_rank_input,
-        refined=get_refined_input,
     params:
         config_hash=CONFIG_HASH,
-        shortlist="results/shortlist.json" if REFINE_ROWS not in ("all", "none") else None,
     output:
-        ranking="results/ranking.csv",
-        sites="results/sites.csv",
-        model="results/model.json",
-        reference="results/reference_fit.csv",
+        ranking=str(L.output("ranking.csv")),
+        sites=str(L.output("sites.csv")),
+        model=str(L.output("model.json")),
+        reference=str(L.output("reference_fit.csv")),
     conda:
         "../envs/dienes.yaml"
     log:
@@ -19,16 +17,32 @@ rule rank:
         "../scripts/rank.py"
 
 
+rule torsion_profiles:
+    input:
+        manifest=MANIFEST,
+        ranking=str(L.output("ranking.csv")),
+    output:
+        str(L.output("profiles.json")),
+    conda:
+        "../envs/dienes.yaml"
+    log:
+        "logs/profiles.log",
+    threads: 1
+    script:
+        "../scripts/torsion_profiles.py"
+
+
 rule report:
     input:
         manifest=MANIFEST,
-        ranking="results/ranking.csv",
-        sites="results/sites.csv",
-        model="results/model.json",
-        reference="results/reference_fit.csv",
+        ranking=str(L.output("ranking.csv")),
+        sites=str(L.output("sites.csv")),
+        model=str(L.output("model.json")),
+        reference=str(L.output("reference_fit.csv")),
+        profiles=str(L.output("profiles.json")),
     output:
-        report="results/report.html",
-        sdf="results/dienes.sdf",
+        report=str(L.output("report.html")),
+        sdf=str(L.output("dienes.sdf")),
     conda:
         "../envs/dienes.yaml"
     log:

@@ -1,4 +1,4 @@
-"""Pricing GFN2-xTB structures at a better level (single points).
+"""Single points on the GFN2-xTB structures at a named level (pricing them).
 
 GFN2-xTB places every atom: conformers, planar s-cis, the located transition
 structure. It does not order dienes well by its own energies (too much
@@ -40,7 +40,7 @@ Barriers (kJ/mol) at the level, per priced site:
   (:mod:`dienes.thermo`: quasi-RRHO, 1 mol/L, the run's temperature) and the diene is the
   Boltzmann ensemble of its priced minima, G(diene) = -RT ln sum exp(-[E + G_corr]_i / RT):
   a flexible diene pays for the torsions and conformers it gives up, which cyclopentadiene
-  never had. The config's ``refine.barrier`` names the one the model uses.
+  never had. The level's ``barrier`` (config ``levels``) names the one the model uses.
 
 An SCF that does not converge (after the second-order fallback) gives the
 status ``scf_failed`` naming the structure; the row then keeps its GFN2-xTB
@@ -53,7 +53,7 @@ import math
 import time
 from dataclasses import dataclass
 
-from .backends import DFTLevel, DFTSettings, Settings as BackendSettings, d3_dispersion_kJmol
+from .backends import Settings as BackendSettings, d3_dispersion_kJmol
 from .units import rt_kjmol
 
 SITE_WINDOW_KJMOL = 15.0          # sites priced: GFN2-xTB barrier within this of the site's best
@@ -61,23 +61,6 @@ MIRROR_TOLERANCE_A = 0.04         # minima whose sorted interatomic distances ag
 MIRROR_ENERGY_KJMOL = 0.1         # ... and whose GFN2-xTB energies this well are mirror images
 PRICED_SITE_STATUSES = ("ok", "ts_unverified")
 MINIMA_WINDOW_KJMOL = 8.0         # diene minima priced: GFN2-xTB energy within this of the lowest
-
-
-def level_settings(refine: dict) -> DFTSettings:
-    """The DFTSettings of the config's `refine` section."""
-    def given(v):
-        return None if v in (None, "", "none") else v
-    extra = {k: refine[k] for k in ("grid_level", "conv_tol_hartree", "density_fit") if k in refine}
-    return DFTSettings(method=refine["method"], basis=refine["basis"],
-                       dispersion=given(refine.get("dispersion")), solvent=given(refine.get("solvent")),
-                       **extra)
-
-
-def level_from_config(refine: dict, threads: int | None = None):
-    """The refined level of a config's `refine` section, or None when refinement is off."""
-    if refine.get("rows", "all") == "none":
-        return None
-    return DFTLevel(level_settings(refine), threads)
 
 
 @dataclass
@@ -169,7 +152,7 @@ def price_structure(structure: dict, level, thermal: Thermal | None = None) -> d
     log: list = []
     out = _result(level, key=structure.get("key", ""), single_points=log)
     if structure.get("status") != "ok":
-        return out | {"status": "not_refined", "message": "no GFN2-xTB structure to price"}
+        return out | {"status": "nothing_to_price", "message": "no GFN2-xTB structure to price"}
     geo = structure["geometry"]
     geometries = geo.get("low_minima_A") or [geo["minimum_A"]]
     rel = structure.get("minima_rel_kJmol", [])[:len(geometries)]   # sorted, lowest first
@@ -232,7 +215,7 @@ def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict
                   single_points=log, sites={})
     labels = sites_to_price(transition)
     if not labels:
-        return out | {"status": "not_refined", "message": "no transition structure to price"}
+        return out | {"status": "nothing_to_price", "message": "no transition structure to price"}
     for what, priced in (("diene", structure_priced), ("dienophile", dienophile_priced)):
         if priced.get("status") != "ok":
             return out | {"status": priced.get("status", "missing"),

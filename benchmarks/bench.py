@@ -54,11 +54,14 @@ def time_refinement(smiles: str, structure: dict, ts: dict, dph: dict, config: d
     """Today's pricing of one diene (its single points and the GFN2-xTB Hessians of the thermal
     corrections) and the landed refinement's five kinds of single point, timed on the same
     structures (the dienophile is paid once per run by both and left out)."""
-    from dienes import refine
+    from dataclasses import replace
+
+    from dienes import singlepoints as refine
     from dienes.backends import DFTLevel
     from dienes.run import thermal_source
-    today = DFTLevel(refine.level_settings(config["refine"]), threads)
-    landed = DFTLevel(refine.level_settings(config["refine"] | LANDED), threads)
+    settings = config.ranking_levels[0].dft_settings()
+    today = DFTLevel(settings, threads)
+    landed = DFTLevel(replace(settings, **LANDED), threads)
     thermal = thermal_source(config)
     dph_priced = refine.price_dienophile(dph, today, thermal)
     t = time.perf_counter()
@@ -86,12 +89,13 @@ def main():
     ap.add_argument("--config", default=os.path.join(os.path.dirname(__file__), "..", "config", "config.yaml"))
     ap.add_argument("--refine", type=int, default=0, metavar="N",
                     help="also time the density-functional refinement of the first N panel dienes "
-                         "(minutes each) at the config's refine level")
+                         "(minutes each) at the config's first ranking level")
     ap.add_argument("--threads", type=int, default=1, help="threads for the refinement")
     args = ap.parse_args()
     config = cfg.load(args.config)
-    config["backend"] = args.backend
-    st = cfg.structure_settings(config)
+    config = config | {"levels": config.as_config()["levels"] | {config.placing.name: {
+        "program": "xtb", "backend": args.backend}}}
+    st = config.structure_settings()
     base = baseline_singlepoint_s(args.backend)
     print(f"baseline: one GFN2-xTB single point of butadiene = {base * 1e3:.2f} ms ({args.backend})")
     dph = compute_dienophile(config["dienophile"], st)

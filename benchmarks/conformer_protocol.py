@@ -166,7 +166,7 @@ def main():
                          "the protocol be compared against the same reference without recomputing it")
     args = ap.parse_args()
     config = cfg.load(CONFIG)
-    st = cfg.structure_settings(config)
+    st = config.structure_settings()
     panel = QUICK if args.quick else PANEL
     n_ref = args.conformers or (QUICK_REFERENCE_FACTOR * config["conformers"]["n_conformers"] if args.quick else 200)
     dph = compute_dienophile(config["dienophile"], st) if args.ts else None

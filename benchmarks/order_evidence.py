@@ -29,7 +29,7 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 
 import numpy as np  # noqa: E402
 
-from dienes import refine  # noqa: E402
+from dienes import singlepoints as refine  # noqa: E402
 from dienes.backends import DFTLevel, DFTSettings, dft_energy  # noqa: E402
 from dienes.pipeline import read_json  # noqa: E402
 from dienes.units import EV_KJMOL, HARTREE_KJMOL, BOHR_ANGSTROM  # noqa: E402

@@ -40,8 +40,8 @@ def costs(results: Path) -> dict:
     for k in lib_keys | ref_keys:
         w_fast = wall(results / "structures" / f"{k}.json") + sum(
             wall(p) for p in (results / "transition").glob(f"{k}__*.json"))
-        w_ref = sum(wall(p) for p in (results / "refined").glob(f"*/{k}__*.json")) + sum(
-            wall(p) for p in (results / "refined").glob(f"*/structures/{k}.json"))
+        w_ref = sum(wall(p) for p in (results / "levels").glob(f"*/pairs/{k}__*.json")) + sum(
+            wall(p) for p in (results / "levels").glob(f"*/structures/{k}.json"))
         for side in ("lib",) * (k in lib_keys) + ("ref",) * (k in ref_keys) + ("all",):
             fast[side] += w_fast
             refined[side] += w_ref
@@ -52,7 +52,7 @@ def costs(results: Path) -> dict:
 
 
 def table(c: dict, efficiency: float) -> str:
-    lines = ["| rows | cores | quick screen (GFN2-xTB) | default (refined level) |", "|---|---|---|---|"]
+    lines = ["| rows | cores | quick screen (GFN2-xTB) | default (density-functional level) |", "|---|---|---|---|"]
     for n in ROWS:
         for cores in CORES:
             fast = (c["fast_once_s"] + n * c["fast_per_row_s"]) / cores / efficiency / 3600

@@ -22,7 +22,7 @@ enthalpy and free energy against Ea - 2RT and the Eyring free energy at the midd
 of each measured range, and the order of the pairs measured 8 kJ/mol or more apart.
 Cost: median wall time of a transition-structure single point per level.
 
-Results are cached: single points under <results>/refined/<level hash>/ (the
+Results are cached: single points under <results>/levels/dft-<settings hash>/ (the
 pipeline's own layout, so a later run at the same level reuses them), GFN2-xTB
 Hessians under <results>/thermo/, gas-phase structures under <results>/gas_phase/.
 
@@ -46,12 +46,12 @@ import numpy as np  # noqa: E402
 from scipy import stats  # noqa: E402
 
 from dienes import model as mdl  # noqa: E402
-from dienes import refine, thermo  # noqa: E402
+from dienes import singlepoints as refine, thermo  # noqa: E402
 from dienes import settings as cfg  # noqa: E402
 from dienes.backends import DFTLevel, Molecule, d3_dispersion_kJmol  # noqa: E402
 from dienes.kinetics import pair_order_fraction, read_measurements  # noqa: E402
 from dienes.pipeline import backend_settings, compute_dienophile, compute_structure, read_json, write_json  # noqa: E402
-from dienes.run import refined_dienophile_path, refined_path, refined_structure_path  # noqa: E402
+from dienes.layout import Layout  # noqa: E402
 from dienes.transition import transition_states_for_structure  # noqa: E402
 from dienes.units import rt_kjmol  # noqa: E402
 
@@ -70,12 +70,22 @@ VARIANTS = ("E", "E+D3", "E+dG", "E+dG(ens)", "E+D3+dG(ens)")
 
 
 def parse_level(text: str) -> dict:
+    """'b3lyp/def2-svp/grid=2/dispersion=d3bj' -> a pyscf level's config."""
     method, basis, *opts = text.split("/")
-    out = {"rows": "all", "method": method, "basis": basis, "dispersion": "none", "solvent": "none"}
+    out = {"program": "pyscf", "method": method, "basis": basis, "dispersion": "none", "solvent": "none"}
     for o in opts:
         k, v = o.split("=")
-        out[{"grid": "grid_level", "conv": "conv_tol_hartree"}.get(k, k)] = int(v) if v.isdigit() else float(v)
+        out[{"grid": "grid_level"}.get(k, k)] = int(v) if v.isdigit() else v
     return out
+
+
+def level_of(level_cfg: dict):
+    """The level a config gives, named dft (its results share the pipeline's folder when its
+    settings are the shipped level's)."""
+    shipped = cfg.load(CONFIG, fallback=False)
+    return (shipped | {"levels": {shipped.placing.name: dict(shipped.placing.options) | {"program": "xtb"},
+                                  "dft": level_cfg},
+                       "ranking": {"levels": ["dft", shipped.placing.name], "rows": "all"}}).levels["dft"]
 
 
 # ------------------------------------------------------------------ the pairs
@@ -98,7 +108,7 @@ def demo_pairs(results: Path, manifest: dict) -> dict:
 def gas_phase_pairs(results: Path, config: dict, measurements) -> dict:
     """(diene smiles, dienophile smiles) -> (structure key, stem, dienophile hash): GFN2-xTB
     structures and transition structures computed with the pipeline's own functions."""
-    st = cfg.structure_settings(config)
+    st = config.structure_settings()
     base = results / "gas_phase"
     out = {}
     for m in measurements:
@@ -106,9 +116,9 @@ def gas_phase_pairs(results: Path, config: dict, measurements) -> dict:
         if pair in out:
             continue
         from rdkit import Chem
-        key = cfg.structure_key(Chem.MolToInchiKey(Chem.MolFromSmiles(m.diene_smiles)), st)
-        dhash = cfg.dienophile_hash(config, m.dienophile_smiles)
-        stem = f"{key}__{cfg.transition_hash(config, m.dienophile_smiles)}"
+        key = config.structure_key(Chem.MolToInchiKey(Chem.MolFromSmiles(m.diene_smiles)))
+        dhash = config.dienophile_hash(m.dienophile_smiles)
+        stem = f"{key}__{config.transition_hash(m.dienophile_smiles)}"
         spath, dpath, tpath = (base / "structures" / f"{key}.json", base / "dienophiles" / f"{dhash}.json",
                                base / "transition" / f"{stem}.json")
         if not spath.is_file():
@@ -152,11 +162,10 @@ def g_corr(numbers, positions, freqs, T: float) -> dict:
 
 def price(results: Path, base: Path, level_cfg: dict, key: str, stem: str, dhash: str, threads: int) -> dict:
     """Priced structure, dienophile and pair at one level (cached in the pipeline's layout)."""
-    config = cfg.load(CONFIG) | {"refine": level_cfg}
-    level = DFTLevel(refine.level_settings(config["refine"]), threads)
-    rhash = cfg.refine_hash(config)
-    sp, dp, pp = (refined_structure_path(results, key, rhash), refined_dienophile_path(results, dhash, rhash),
-                  refined_path(results, stem, rhash))
+    named = level_of(level_cfg)
+    level = DFTLevel(named.dft_settings(), threads)
+    layout, lkey = Layout(results), named.key()
+    sp, dp, pp = (layout.level_structure(lkey, key), layout.level_dienophile(lkey, dhash), layout.level_pair(lkey, stem))
     if not sp.is_file():
         write_json(refine.price_structure(read_json(base / "structures" / f"{key}.json"), level), sp)
     if not dp.is_file():
@@ -213,7 +222,7 @@ def barrier_variants(priced: dict, structure: dict, dienophile: dict, dhash: str
 def reference_figures(names, x, y, T_ref) -> dict:
     X = np.asarray(x, dtype=float)[:, None]
     y = np.asarray(y, dtype=float)
-    feats = ["barrier_refined_kJmol"]
+    feats = ["barrier_kJmol"]
     fit, comparison, y_cv = mdl.select(X, y, feats, T_ref)
     nested = mdl.nested_cv({feats[0]: X[:, 0]}, y, feats, [], T_ref, 0)
     ols = mdl.fit(X, y, feats, "ols", T_ref)
@@ -274,7 +283,7 @@ def main():
         return
     results = Path(args.results)
     config = cfg.load(CONFIG)
-    st = cfg.structure_settings(config)
+    st = config.structure_settings()
     manifest = read_json(results / "manifest.json")
     pairs = demo_pairs(results, manifest)
     if args.reference_only:

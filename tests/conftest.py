@@ -16,7 +16,7 @@ def config():
 
 @pytest.fixture(scope="session")
 def structure_settings(config):
-    return cfg.structure_settings(config)
+    return config.structure_settings()
 
 
 from dienes.backends import available  # noqa: E402
@@ -28,6 +28,4 @@ BACKENDS = [b for b in ("xtb-python", "tblite") if available(b)]
 @pytest.fixture(scope="session", params=BACKENDS)
 def backend_settings(request, config):
     """Per-structure settings for each GFN2-xTB backend in turn."""
-    c = dict(config)
-    c["backend"] = request.param
-    return cfg.structure_settings(c)
+    return config.structure_settings() | {"backend": request.param}

@@ -177,11 +177,11 @@ def test_a_bad_reference_file_gives_each_row_its_reason(tmp_path, monkeypatch):
     lib.write_text("id,smiles\nx1,C=CC=C\n")
     config = cfg.load(Path(REPO) / "config" / "config.yaml") | {"library": str(lib), "reference": str(ref)}
     manifest = run.prepare(config, tmp_path / "manifest.json", results=tmp_path / "results")
-    site = {"site_status": "ok", "ts_verified": True, "barrier_kJmol": 10.0, "site_kind": "acyclic",
+    site = {"site_status": "ok", "ts_verified": True, "gfn2_barrier_kJmol": 10.0, "site_kind": "acyclic",
             "aromatic": False}
-    monkeypatch.setattr(ranking, "record_sites", lambda rec, computed: [site])
-    table = ranking.reference_rows(manifest["reference_records"], ranking.Computed(structures={}))
-    assert table["used"].tolist() == [True, False, False, False, True]
+    monkeypatch.setattr(ranking, "record_sites", lambda rec, computed, settings: [site])
+    table = ranking.reference_rows(manifest["reference_records"], ranking.Computed(structures={}), config)
+    assert table["usable"].tolist() == [True, False, False, False, True]
     assert table["reason"].iloc[1] == "log10_k missing or not a number"
     assert table["reason"].iloc[2] == "same diene and dienophile as reference row r1: counted once"
     assert table["reason"].iloc[3].startswith("invalid_dienophile: dienophile_smiles:")

@@ -11,12 +11,14 @@ def _table(preds, smiles=None):
     return pd.DataFrame({
         "row": range(1, n + 1), "id": [f"x{i}" for i in range(n)],
         "smiles": smiles or ["C=CC(C)=C"] * n, "rank": pd.array(range(1, n + 1), dtype="Int64"),
-        "level": ["B3LYP/def2-SVP"] * n, "in_domain": [True] * n, "domain_note": [""] * n,
-        "log10_k_pred": preds, "log10_k_high": preds, "log10_k_xtb": preds})
+        "level": ["dft"] * n, "in_domain": [True] * n, "domain_note": [""] * n,
+        "log10_k_pred": preds, "log10_k_high": preds, "dft_log10_k_pred": preds, "gfn2_log10_k_pred": preds})
 
 
-SUMMARY = {"cv_rmse_log10k": 0.5, "cv_pairwise_accuracy": 0.83, "ranking_level": "B3LYP/def2-SVP",
-           "run_dienophile": "O=C1OC(=O)C=C1", "base_dienophile": "O=C1C=CC(=O)O1", "dienophile_terms": {}}
+# model.json's shape: the ranking level's model under levels, keyed by level name
+SUMMARY = {"ranking_level": "dft", "ranking_levels": ["dft", "gfn2"], "run_dienophile": "O=C1OC(=O)C=C1",
+           "levels": {"dft": {"cv_rmse_log10k": 0.5, "cv_pairwise_accuracy": 0.83, "base_dienophile": "O=C1C=CC(=O)O1",
+                              "dienophile_terms": {}}}}
 
 
 def test_tiers_break_where_the_model_can_tell_rows_apart():

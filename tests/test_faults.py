@@ -59,7 +59,7 @@ def test_unconverged_optimisation_is_recorded(structure_settings):
 
 # faults are the workflow's, not the level's: these runs stop at GFN2-xTB (the refined stage's
 # own reruns are counted in tests/test_workflow.py)
-FAST = {"rows": "none"}
+FAST = {"levels": ["gfn2"]}
 LIB = [("K-1", "C=CC=C", ""), ("K-2", "C/C=C/C=C", ""), ("K-3", "C=CC(=C)CCC=C(C)C", ""),
        ("K-4", "C1=CCCC=C1", "")]
 
@@ -75,7 +75,7 @@ def test_kill_9_then_the_same_command_resumes_to_identical_results(tmp_path):
     clean, killed = tmp_path / "clean", tmp_path / "killed"
     for d in (clean, killed):
         d.mkdir()
-        _setup(d, LIB, refine=FAST)
+        _setup(d, LIB, ranking=FAST)
     assert _snakemake(clean).returncode == 0
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
            "--directory", str(killed), "--cores", "2"]
@@ -103,7 +103,7 @@ def test_kill_9_then_the_same_command_resumes_to_identical_results(tmp_path):
 
 @pytest.mark.slow
 def test_truncated_result_is_detected_and_recomputed(tmp_path):
-    _setup(tmp_path, LIB[:2], refine=FAST)
+    _setup(tmp_path, LIB[:2], ranking=FAST)
     assert _snakemake(tmp_path).returncode == 0
     before = _numbers(tmp_path)
     victim = sorted((tmp_path / "results" / "structures").glob("*.json"))[0]
@@ -123,7 +123,7 @@ def test_truncated_result_is_detected_and_recomputed(tmp_path):
 
 @pytest.mark.slow
 def test_a_second_run_on_the_same_directory_is_refused(tmp_path):
-    _setup(tmp_path, LIB, refine=FAST)
+    _setup(tmp_path, LIB, ranking=FAST)
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
            "--directory", str(tmp_path), "--cores", "1"]
     first = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,

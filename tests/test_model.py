@@ -90,3 +90,38 @@ def test_pairwise_accuracy():
     assert mdl.pairwise_accuracy([1, 2, 3], [1, 2, 3]) == 1.0
     assert mdl.pairwise_accuracy([1, 2, 3], [3, 2, 1]) == 0.0
     assert mdl.pairwise_accuracy([1, 2, 3], [1, 3, 2]) == pytest.approx(2 / 3)
+
+
+def _reference_table(n=14, seed=3):
+    """A reference table as ranking.reference_rows builds it, two levels' barriers per diene:
+    the measured rates follow the dft barrier (transition-state theory slope at 303 K) and the
+    s-cis penalty; the gfn2 barrier is unrelated noise."""
+    import pandas as pd
+    rng = np.random.default_rng(seed)
+    dft = rng.uniform(60, 110, n)
+    penalty = rng.uniform(0, 15, n)
+    slope = -log10_units_per_kjmol(303.15)
+    return pd.DataFrame({
+        "id": [f"r{i}" for i in range(n)], "smiles": ["C=CC=C"] * n, "usable": True, "reason": "",
+        "log10_k": slope * (dft - 80.0) + 0.5 * slope * penalty + rng.normal(0, 0.05, n),
+        "dienophile_smiles": "O=C1OC(=O)C=C1", "temperature_K": 303.15, "site_kind": "acyclic", "aromatic": False,
+        "dft_barrier_kJmol": dft, "dft_electronic_barrier_kJmol": dft - 40.0, "dft_status": "ok",
+        "gfn2_barrier_kJmol": rng.uniform(-20, 10, n), "gfn2_status": "ok", "scis_penalty_kJmol": penalty})
+
+
+def test_every_level_is_fitted_by_one_path_with_every_descriptor(config):
+    # a descriptor that exists only at GFN2-xTB (the s-cis penalty) enters every level's model
+    # under its own name: asking for it must not fail at the density-functional level (it once
+    # dropped out of that level's candidates, and a user's feature made the fit raise)
+    from scipy import stats
+    from dienes import ranking
+    settings = config | {"model": dict(config["model"], features=["barrier_kJmol", "scis_penalty_kJmol"])}
+    table = _reference_table()
+    fits = {name: ranking.fit_reference(table, settings, settings.levels[name]) for name in ("dft", "gfn2")}
+    for name, (fit, summary, view) in fits.items():
+        assert fit.features[:2] == ["barrier_kJmol", "scis_penalty_kJmol"] and summary["name"] == name
+        assert view[f"{name}_used"].all() and summary["n_reference"] == len(table)
+    # each level's model reads its own barrier: only the one the rates follow fits them
+    rho = {name: stats.spearmanr(view[f"{name}_log10_k_cv"], table["log10_k"]).statistic
+           for name, (_, _, view) in fits.items()}
+    assert rho["dft"] > 0.95 and rho["gfn2"] < rho["dft"] - 0.1, rho

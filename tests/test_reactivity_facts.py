@@ -1,8 +1,8 @@
 """Known reactivity facts through the whole in-process ranking at the fast level (slow).
 
 One in-process run ranks a panel with the shipped reference set (maleic
-anhydride) at GFN2-xTB alone (refine.rows: none: a density-functional
-pricing of 28 pairs does not fit in CI), so these are the facts the quick
+anhydride) at GFN2-xTB alone (ranking.levels [gfn2]: density-functional
+single points of 28 pairs do not fit in CI), so these are the facts the quick
 screen gets right, and the one it gets wrong is a strict xfail. Where both
 dienes of a fact are in the reference set they are left out of the fit, so
 the fact is predicted, not fitted. Sources beside each fact.
@@ -39,8 +39,8 @@ def panel(tmp_path_factory, config):
         w = csv.writer(fh)
         w.writerow(["id", "smiles"])
         w.writerows(PANEL)
-    cfg = dict(config, library=str(lib), reference=str(Path(REPO) / "config" / "reference_rates.csv"),
-               refine=dict(config["refine"], rows="none"))
+    cfg = config | dict(library=str(lib), reference=str(Path(REPO) / "config" / "reference_rates.csv"),
+                        ranking={"levels": ["gfn2"]})
     return cfg, d
 
 
@@ -64,7 +64,7 @@ def test_order(panel, fast, slow):
 
 @pytest.mark.parametrize("slow", ["furan", "mefuran", "thiophene", "nmp", pytest.param("anthracene", marks=(
     pytest.mark.xfail(strict=True, reason="GFN2-xTB puts anthracene's 9,10 saddle about 6 kJ/mol below "
-                      "cyclopentadiene's: a known failure of the fast level, which the refined level "
+                      "cyclopentadiene's: a known failure of the fast level, which the density-functional level "
                       "(docs/validation.md) does not share; strict, so a fix shows up")))])
 def test_heteroaromatic_and_acene_dienes_below_cyclopentadiene(panel, slow):
     # with maleic anhydride furans add slowly and reversibly, thiophene and pyrroles give no
@@ -95,7 +95,8 @@ def test_di_tert_butyl_at_the_bottom_and_locked_s_trans_not_ranked(panel):
 
 
 def test_model_on_the_reference_set(panel):
-    rows, summary = _pred(panel)
+    rows, model = _pred(panel)
+    summary = model["levels"]["gfn2"]
     assert summary["n_reference"] == 16
     y = np.array(list(REFERENCE_Y.values()))
     # the model must beat predicting the mean of the reference values: the leave-one-out

@@ -76,7 +76,7 @@ def test_quasi_rrho_caps_the_entropy_of_a_very_soft_mode():
 def test_two_equal_conformers_lower_the_free_energy_by_RT_ln_2():
     # a diene with two mirror-image gauche minima has twice the partition function of one:
     # G = G_i - RT ln 2 = G_i - 1.718 kJ/mol at 298.15 K (statistical mechanics, common practice)
-    from dienes.refine import ensemble_free_energy_kJmol
+    from dienes.singlepoints import ensemble_free_energy_kJmol
     assert ensemble_free_energy_kJmol([10.0, 10.0], 298.15) == pytest.approx(10.0 - 1.7185, abs=1e-3)
     # a conformer 30 kJ/mol up adds almost nothing (exp(-12) of the weight)
     assert ensemble_free_energy_kJmol([10.0, 40.0], 298.15) == pytest.approx(10.0, abs=1e-3)

@@ -5,6 +5,7 @@ import re
 
 import pytest
 
+from dienes import settings as cfg
 from dienes import validation
 
 from .conftest import BACKENDS
@@ -78,6 +79,6 @@ def test_known_errors_are_few_and_say_so():
 
 
 def test_every_check_says_why_its_tolerance():
-    for c in validation.checks() + validation.backend_checks() + validation.refined_checks(
-            {"method": "b3lyp", "basis": "def2-svp", "dispersion": "none", "solvent": "none"}):
+    for c in validation.checks() + validation.backend_checks() + validation.level_checks(
+            cfg.load(validation.CONFIG_PATH).levels["dft"]):
         assert c.source and c.why, c.name

@@ -18,8 +18,8 @@ pytestmark = pytest.mark.slow
 
 # neither butadiene nor cyclopentadiene: their order in the library is predicted, not fitted
 REFERENCE_IDS = {"ref-02", "ref-03", "ref-04", "ref-05", "ref-06"}
-# the refined level at a minimal basis: the whole refined path runs, in seconds per structure
-SMALL_LEVEL = {"rows": "all", "method": "b3lyp", "basis": "sto-3g", "dispersion": "none", "solvent": "none"}
+# the density-functional level at a minimal basis: the whole single-point path runs, in seconds per structure
+SMALL_LEVEL = {"program": "pyscf", "method": "b3lyp", "basis": "sto-3g", "dispersion": "none", "solvent": "none"}
 
 
 def _write_reference(path: Path, ids):
@@ -44,10 +44,9 @@ def _setup(tmp_path: Path, library_rows, **config_updates):
     _write_reference(tmp_path / "config" / "reference.csv", REFERENCE_IDS)
     _setup_library(tmp_path, library_rows)
     cfg = yaml.safe_load(open(Path(REPO) / "config" / "config.yaml"))
-    cfg.update(library="lib.csv", reference="config/reference.csv",
-               **{k: v for k, v in config_updates.items() if k != "refine"})
+    cfg.update(library="lib.csv", reference="config/reference.csv", **config_updates)
     cfg["conformers"].update(n_conformers=4, xtb_per_family=1, planar_starts=1)
-    cfg["refine"] = dict(SMALL_LEVEL) | config_updates.get("refine", {})
+    cfg["levels"]["dft"] = dict(SMALL_LEVEL)
     (tmp_path / "config" / "config.yaml").write_text(yaml.safe_dump(cfg))
 
 
@@ -78,9 +77,9 @@ def computed_in(tmp_path, since_ns: int) -> Counter:
     return out
 
 
-def _refined_files(tmp_path) -> dict:
-    return {p.relative_to(tmp_path / "results" / "refined"): p.stat().st_mtime_ns
-            for p in (tmp_path / "results" / "refined").rglob("*.json")}
+def _level_files(tmp_path) -> dict:
+    return {p.relative_to(tmp_path / "results" / "levels"): p.stat().st_mtime_ns
+            for p in (tmp_path / "results" / "levels").rglob("*.json")}
 
 
 def test_tiny_library_end_to_end_and_incremental(tmp_path):
@@ -91,12 +90,20 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     assert [r["id"] for r in rows] == ["T-1", "T-2", "T-3"]
     assert [r["status"] for r in rows] == ["ok", "ok", "invalid_smiles"]
     assert rows[2]["message"].startswith("RDKit:") and rows[2]["rank"] == ""
-    # every reactive row is ranked at the refined level, and says so; the GFN2-xTB rank stands beside it
+    # every reactive row is ranked at the density-functional level, and says so; the GFN2-xTB
+    # view (its own model, rank and barrier) stands beside it, fitted by the same code
     model = json.loads((tmp_path / "results" / "model.json").read_text())
-    assert model["ranking_level"] == "B3LYP/STO-3G" and model["features"] == ["barrier_refined_kJmol"]
-    assert model["fast"]["level"] == "GFN2-xTB" and model["n_reference"] == 5
-    assert [r["level"] for r in rows[:2]] == ["B3LYP/STO-3G"] * 2
-    assert all(r["barrier_refined_kJmol"] and r["rank_xtb"] for r in rows[:2])
+    assert model["ranking_level"] == "dft" and model["ranking_levels"] == ["dft", "gfn2"]
+    assert model["levels"]["dft"]["level"] == "B3LYP/STO-3G" and model["levels"]["gfn2"]["level"] == "GFN2-xTB"
+    assert model["levels"]["dft"]["base_features"] == ["barrier_kJmol"] and model["levels"]["dft"]["n_reference"] == 5
+    # every candidate descriptor is open to every level's fit (none dropped for want of a level's name)
+    shipped = yaml.safe_load(open(Path(REPO) / "config" / "config.yaml"))["model"]["candidates"]
+    assert model["levels"]["dft"]["candidates"] == model["levels"]["gfn2"]["candidates"] == shipped
+    assert [r["level"] for r in rows[:2]] == ["dft"] * 2 and rows[0]["barrier_kind"] == "free_energy"
+    for r in rows[:2]:   # the unprefixed barrier is the one the row is ranked by
+        assert float(r["barrier_kJmol"]) == float(r["dft_barrier_kJmol"]) != float(r["gfn2_barrier_kJmol"])
+        assert float(r["log10_k_pred"]) == float(r["dft_log10_k_pred"]) and r["gfn2_rank"]
+        assert float(r["electronic_barrier_kJmol"]) != float(r["barrier_kJmol"])
     # cyclopentadiene reacts faster than butadiene (about 1000-fold with maleic anhydride; Sauer &
     # Sustmann 1980, from memory; common practice); neither is in the fitted reference set here
     assert rows[1]["rank"] == "1" and rows[0]["rank"] == "2"
@@ -116,82 +123,99 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     _setup_library(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b"), ("T-3", "C1=CC=C", "c"),
                               ("T-4", "C=CC(Cl)=C", "d")])
     t0 = max(p.stat().st_mtime_ns for p in (tmp_path / "results").rglob("*.json"))
-    refined_before = _refined_files(tmp_path)
+    level_before = _level_files(tmp_path)
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
-    assert jobs_run(run) == Counter(prepare=1, compute_structures=1, compute_transitions=1, refine_pairs=1,
-                                    rank=1, report=1)
+    assert jobs_run(run) == Counter(prepare=1, compute_structures=1, compute_transitions=1, level_pairs=1,
+                                    rank=1, torsion_profiles=1, report=1)
     assert computed_in(tmp_path, t0) == Counter(structures=1, transition=1)
     after = sorted((tmp_path / "results" / "structures").glob("*.json"))
     assert len(after) == len(structures) + 1
     assert all(p.stat().st_mtime_ns == mtimes[p.name] for p in after if p.name in mtimes)
-    refined_after = _refined_files(tmp_path)
-    assert all(refined_after[p] == t for p, t in refined_before.items())   # priced files untouched
-    assert len(refined_after) == len(refined_before) + 2                   # the new pair and its diene
+    level_after = _level_files(tmp_path)
+    assert all(level_after[p] == t for p, t in level_before.items())       # computed files untouched
+    assert len(level_after) == len(level_before) + 2                       # the new pair and its diene
     assert [r["id"] for r in _ranking(tmp_path)] == ["T-1", "T-2", "T-3", "T-4"]
 
     # a new reference file of known dienes: the models are refitted, nothing is computed
     _write_reference(tmp_path / "config" / "reference.csv", REFERENCE_IDS - {"ref-05"})
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
-    assert jobs_run(run) == Counter(prepare=1, rank=1, report=1)
-    assert json.loads((tmp_path / "results" / "model.json").read_text())["n_reference"] == 4
+    assert jobs_run(run) == Counter(prepare=1, rank=1, torsion_profiles=1, report=1)
+    assert json.loads((tmp_path / "results" / "model.json").read_text())["levels"]["dft"]["n_reference"] == 4
 
-    # another refined level (Hartree-Fock: no grid, the cheapest): every pair is priced again,
-    # no GFN2-xTB work
-    run = _snakemake(tmp_path, "--config", "refine={method: hf}")
+    # other settings of the dft level (Hartree-Fock: no grid, the cheapest): every pair is computed
+    # again, no GFN2-xTB work
+    run = _snakemake(tmp_path, "--config", "levels={dft: {method: hf}}")
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
     assert "compute_structures" not in jobs and "compute_transitions" not in jobs
-    assert jobs["refine_dienophile"] == 1 and jobs["refine_pairs"] == 7     # 3 library + 4 reference pairs, one job each
-    assert {r["level"] for r in _ranking(tmp_path) if r["rank"]} == {"HF/STO-3G"}
+    assert jobs["level_dienophile"] == 1 and jobs["level_pairs"] == 7     # 3 library + 4 reference pairs, one job each
+    assert {r["level_method"].split(",")[0] for r in _ranking(tmp_path) if r["rank"]} == {"HF/STO-3G"}
 
     # another dienophile: its own minimum, the library's transition structures and their pricing;
     # conformers, the dienes' priced minima and the reference set (its own dienophile) are reused
     t0 = max(p.stat().st_mtime_ns for p in (tmp_path / "results").rglob("*.json"))
-    n_priced_dienes = len(list((tmp_path / "results" / "refined").glob("*/structures/*.json")))
-    with_ma = {r["id"]: float(r["barrier_kJmol"]) for r in _ranking(tmp_path) if r["barrier_kJmol"]}
+    n_priced_dienes = len(list((tmp_path / "results" / "levels").glob("*/structures/*.json")))
+    with_ma = {r["id"]: float(r["gfn2_barrier_kJmol"]) for r in _ranking(tmp_path) if r["gfn2_barrier_kJmol"]}
     run = _snakemake(tmp_path, "--config", "dienophile=C=CC#N")
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
     assert "compute_structures" not in jobs and jobs["compute_dienophile"] == 1
-    assert jobs["refine_dienophile"] == 1 and jobs["refine_pairs"] == 3
+    assert jobs["level_dienophile"] == 1 and jobs["level_pairs"] == 3
     assert computed_in(tmp_path, t0) == Counter(transition=3)   # butadiene, cyclopentadiene, chloroprene
-    assert len(list((tmp_path / "results" / "refined").glob("*/structures/*.json"))) == n_priced_dienes
+    assert len(list((tmp_path / "results" / "levels").glob("*/structures/*.json"))) == n_priced_dienes
     model = json.loads((tmp_path / "results" / "model.json").read_text())
-    assert model["run_dienophile"] == "C=CC#N" and model["note"]  # not the reference dienophile: said so
+    assert model["run_dienophile"] == "C=CC#N" and model["levels"]["dft"]["note"]  # not the reference dienophile
     # ranking.csv carries the run's dienophile's barriers: acrylonitrile is a much weaker dienophile
     # than maleic anhydride (common practice), so every diene's barrier rises, and every row says
     # that its rate is a transfer from the reference dienophile
     rows = _ranking(tmp_path)
-    with_an = {r["id"]: float(r["barrier_kJmol"]) for r in rows if r["barrier_kJmol"]}
+    with_an = {r["id"]: float(r["gfn2_barrier_kJmol"]) for r in rows if r["gfn2_barrier_kJmol"]}
     assert set(with_an) == set(with_ma) and all(with_an[i] > with_ma[i] + 5.0 for i in with_ma)
     assert all(r["dienophile"] == "C=CC#N" and r["dienophile_in_reference"] == "False" for r in rows if r["rank"])
 
 
-def test_the_quick_screen_is_labelled_as_the_fast_level(tmp_path):
-    _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b")], refine={"rows": "none"})
+def test_the_quick_screen_a_shortlist_and_a_third_level_by_configuration(tmp_path):
+    _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b")], ranking={"levels": ["gfn2"]})
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
-    assert "refine_pairs" not in jobs and "refine_dienophile" not in jobs
+    assert "level_pairs" not in jobs and "level_dienophile" not in jobs
     rows = _ranking(tmp_path)
-    assert {r["level"] for r in rows} == {"GFN2-xTB"} and all(r["rank"] for r in rows)
-    assert json.loads((tmp_path / "results" / "model.json").read_text())["ranking_level"] == "GFN2-xTB"
+    assert {r["level"] for r in rows} == {"gfn2"} and all(r["rank"] for r in rows)
+    assert all(r["barrier_kind"] == "electronic" and r["barrier_kJmol"] == r["gfn2_barrier_kJmol"] for r in rows)
+    assert json.loads((tmp_path / "results" / "model.json").read_text())["ranking_level"] == "gfn2"
     assert "GFN2-xTB level only" in (tmp_path / "results" / "report.html").read_text()
 
-    # refine.rows: 1 prices the best GFN2-xTB row and the reference set, nothing else; the
-    # other row stays at GFN2-xTB and says why
-    run = _snakemake(tmp_path, "--config", "refine={rows: 1}")
+    # ranking.rows 1 computes the best GFN2-xTB row and the reference set at dft, nothing else;
+    # the other row is ranked at gfn2 and says why
+    run = _snakemake(tmp_path, "--config", "ranking={levels: [dft, gfn2], rows: 1}")
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
-    assert jobs["shortlist"] == 1 and jobs["refine_pairs"] == 1 + len(REFERENCE_IDS)
+    assert jobs["shortlist"] == 1 and jobs["level_pairs"] == 1 + len(REFERENCE_IDS)
     assert "compute_structures" not in jobs and "compute_transitions" not in jobs
     rows = {r["id"]: r for r in _ranking(tmp_path)}
-    best_xtb = min(rows.values(), key=lambda r: int(r["rank_xtb"]))
-    other = next(r for r in rows.values() if r is not best_xtb)
-    assert best_xtb["level"] == "B3LYP/STO-3G" and other["level"] == "GFN2-xTB"
-    assert "not among the 1 best GFN2-xTB rows" in other["message"]
+    best_gfn2 = min(rows.values(), key=lambda r: int(r["gfn2_rank"]))
+    other = next(r for r in rows.values() if r is not best_gfn2)
+    assert best_gfn2["level"] == "dft" and other["level"] == "gfn2"
+    assert "ranked at gfn2: not computed at dft: not among the 1 best rows at gfn2" in other["message"]
+
+    # a third level named in the config alone ranks, the other two beside it: no code knows its name
+    run = _snakemake(tmp_path, "--config", "levels={hf: {program: pyscf, method: hf, basis: sto-3g}}",
+                     "ranking={levels: [hf, dft, gfn2], rows: all}")
+    assert run.returncode == 0, run.stderr[-3000:]
+    jobs = jobs_run(run)
+    assert jobs["level_dienophile"] == 1 and "compute_transitions" not in jobs   # hf's; dft's is kept
+    model = json.loads((tmp_path / "results" / "model.json").read_text())
+    assert model["ranking_level"] == "hf" and set(model["levels"]) == {"hf", "dft", "gfn2"}
+    assert model["levels"]["hf"]["level"] == "HF/STO-3G"
+    rows = _ranking(tmp_path)
+    assert {r["level"] for r in rows} == {"hf"}
+    for r in rows:
+        assert float(r["barrier_kJmol"]) == float(r["hf_barrier_kJmol"])
+        assert r["dft_rank"] and r["gfn2_rank"] and r["dft_barrier_kJmol"] and r["gfn2_barrier_kJmol"]
+    assert (tmp_path / "results" / "levels").is_dir() and len(list((tmp_path / "results" / "levels").iterdir())) == 2
 
 
 def test_unreadable_library_stops_before_computing(tmp_path):

@@ -1,8 +1,8 @@
-"""Pricing GFN2-xTB structures at another level (dienes.refine)."""
+"""Single points on GFN2-xTB structures at another level (dienes.singlepoints)."""
 import numpy as np
 import pytest
 
-from dienes import refine
+from dienes import singlepoints as refine
 from dienes.backends import DFTLevel, DFTSettings, GFN2Level, LevelEnergy, dft_energy
 from dienes.units import BOHR_ANGSTROM, HARTREE_KJMOL
 
@@ -30,13 +30,17 @@ def test_density_fitting_changes_an_energy_by_far_less_than_a_barrier_difference
     assert abs(fitted.energy_kJmol - exact.energy_kJmol) < 0.1
 
 
-def test_level_from_the_config_section():
-    level = refine.level_settings({"rows": "all", "method": "b3lyp", "basis": "def2-svp", "dispersion": "none",
-                                   "solvent": "1,4-dioxane"})
+def test_level_from_the_config(config):
+    levels = config.replace(levels={"gfn2": {"program": "xtb"}, "smd": {
+        "program": "pyscf", "method": "b3lyp", "basis": "def2-svp", "dispersion": "none", "solvent": "1,4-dioxane"}},
+        ranking={"levels": ["smd", "gfn2"]}).levels
+    level = levels["smd"].dft_settings()
     assert level.dispersion is None and level.solvent == "1,4-dioxane" and level.density_fit
-    assert level.label() == "B3LYP/def2-SVP, SMD(1,4-dioxane)"
-    assert refine.level_from_config({"rows": "none", "method": "b3lyp", "basis": "def2-svp"}) is None
-    assert isinstance(refine.level_from_config({"rows": 3, "method": "b3lyp", "basis": "def2-svp"}), DFTLevel)
+    assert levels["smd"].label() == "B3LYP/def2-SVP, SMD(1,4-dioxane)"
+    assert isinstance(levels["smd"].energy_backend(), DFTLevel) and levels["gfn2"].places_atoms
+    # the results folder is named by what changes a number: the barrier kind does not
+    same = config.replace(levels=config.as_config()["levels"] | {"dft": {"program": "pyscf", "barrier": "electronic"}})
+    assert same.levels["dft"].key() == config.levels["dft"].key() and same.levels["dft"].barrier == "electronic"
 
 
 def test_sites_within_the_window_are_priced_lowest_first():

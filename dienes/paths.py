@@ -13,7 +13,8 @@ def workflow_root() -> Path:
     """The directory that holds Snakefile, workflow/ and config/."""
     if (_CHECKOUT / "Snakefile").is_file() and (_CHECKOUT / "config" / "schema.yaml").is_file():
         return _CHECKOUT
-    for prefix in (sys.prefix, sys.base_prefix):
+    # an installed package: <prefix>/share/dienes, or beside the package (pip install --target)
+    for prefix in (sys.prefix, sys.base_prefix, _CHECKOUT):
         candidate = Path(prefix) / "share" / "dienes"
         if (candidate / "Snakefile").is_file():
             return candidate

@@ -34,9 +34,11 @@ def test_xtb_python_boundary_conversion():
                                res.get_orbital_eigenvalues() * units.HARTREE_EV, atol=1e-8)
 
 
-def test_forces_match_finite_differences():
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_forces_match_finite_differences(backend):
+    # central differences of the energy (common practice); on every importable backend
     numbers, pos = _butadiene()
-    mol = Molecule(numbers)
+    mol = Molecule(numbers, Settings(name=backend))
     f = mol.singlepoint(pos).forces_eV_A
     h = 1e-4
     for atom, axis in [(0, 0), (1, 2), (5, 1)]:

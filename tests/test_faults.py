@@ -35,7 +35,7 @@ class _FlakySession:
 
 
 def test_scf_failure_is_retried_at_higher_electronic_temperature(monkeypatch):
-    monkeypatch.setitem(backends._SESSIONS, "xtb-python", _FlakySession)
+    monkeypatch.setitem(backends._SESSIONS, "xtb-python", _FlakySession)   # Molecule's default backend
     mol = Molecule([1, 1])
     sp = mol.singlepoint(np.array([[0.0, 0.0, 0.0], [0.74, 0.0, 0.0]]))
     assert sp.electronic_temperature_K == 1000.0 and mol.retries == 1
@@ -43,7 +43,7 @@ def test_scf_failure_is_retried_at_higher_electronic_temperature(monkeypatch):
 
 def test_scf_failure_everywhere_gives_a_status(monkeypatch, structure_settings):
     monkeypatch.setattr(_FlakySession, "fail_below_K", 1e9)
-    monkeypatch.setitem(backends._SESSIONS, "xtb-python", _FlakySession)
+    monkeypatch.setitem(backends._SESSIONS, structure_settings["backend"], _FlakySession)   # the backend in use
     r = compute_structure("C=CC=C", structure_settings)
     assert r["status"] == "scf_failed"
     assert "SCF did not converge" in r["message"]

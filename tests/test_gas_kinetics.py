@@ -31,6 +31,7 @@ def test_the_measured_orders_asserted_below_are_well_separated():
     assert _measured(CHD, ETHYLENE) - _measured(CHD, ACROLEIN) > 8.0
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("backend", BACKENDS[:1])
 def test_the_barrier_follows_the_dienophile(backend):
     # butadiene: maleic anhydride adds at room temperature, acrolein on warming, ethylene only hot

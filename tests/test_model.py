@@ -66,6 +66,7 @@ def test_domain_includes_the_fixed_slope_descriptor():
     assert not inside[0] and "scis_penalty_kJmol" in why[0][0]
 
 
+@pytest.mark.slow
 def test_forward_selection_adds_only_a_helpful_feature():
     rng = np.random.default_rng(2)
     n = 30

@@ -17,6 +17,7 @@ def test_h2_hartree_fock_minimal_basis_matches_the_textbook():
     assert e.energy_kJmol / HARTREE_KJMOL == pytest.approx(-1.1167, abs=2e-4)
 
 
+@pytest.mark.slow
 def test_density_fitting_changes_an_energy_by_far_less_than_a_barrier_difference():
     # density fitting with the def2 universal fitting basis: errors of ~1e-5 hartree per atom
     # in total energies (Weigend, Phys. Chem. Chem. Phys. 2006, 8, 1057), i.e. well under

@@ -69,9 +69,12 @@ def _rank(args) -> int:
         return _fail(f"{args.library}: unknown file type {library.suffix or '(no extension)'!r}; "
                      "name it .csv (columns id, smiles), .smi or .sdf")
     if args.dienophile:
+        from .dienophiles import smiles_of
+        args.dienophile = smiles_of(args.dienophile)
         problem = check_dienophile(args.dienophile)
         if problem:
-            return _fail(f"dienophile {args.dienophile!r}: {problem}")
+            return _fail(f"dienophile {args.dienophile!r}: {problem} (give a SMILES, or a common name: "
+                         "dienes rank --help lists them)")
     workdir = Path(args.workdir).resolve()
     workdir.mkdir(parents=True, exist_ok=True)
     local_config = workdir / "config" / "config.yaml"
@@ -143,7 +146,9 @@ def _look(args) -> int:
             placing: {"program": "xtb", "backend": args.backend}})
     config = settings
     st = settings.structure_settings()
-    dph_smiles = args.dienophile or config["dienophile"]
+    from .dienophiles import smiles_of
+    dph_smiles = smiles_of(args.dienophile) if args.dienophile else config["dienophile"]
+    args.dienophile = smiles_of(args.dienophile) if args.dienophile else None
     problem = check_dienophile(dph_smiles)
     if problem:
         return _fail(f"dienophile {dph_smiles!r}: {problem}")
@@ -269,7 +274,10 @@ def main(argv=None) -> int:
                        help="rank a library with the workflow (CSV id,smiles; .smi; .sdf)",
                        description="Rank a diene library with the Snakemake workflow and print the top.")
     r.add_argument("library", help="the diene library file")
-    r.add_argument("--dienophile", metavar="SMILES", help="dienophile SMILES (C=C or C#C; default: the config's, maleic anhydride)")
+    from .dienophiles import COMMON
+    names = ", ".join(COMMON)
+    r.add_argument("--dienophile", metavar="SMILES|NAME",
+                   help=f"dienophile SMILES (C=C or C#C) or one of: {names} (default: the config's, maleic anhydride)")
     cores = os.cpu_count() or 1
     r.add_argument("--cores", type=int, default=cores, help=f"CPU cores to use (default: all, {cores} here)")
     how = r.add_mutually_exclusive_group()
@@ -291,7 +299,8 @@ def main(argv=None) -> int:
                         description="Sites, s-cis penalty, frontier orbitals, transition structure and "
                                     "torsion profile of one diene, computed on the spot.")
     lk.add_argument("smiles", help="the diene SMILES")
-    lk.add_argument("--dienophile", metavar="SMILES", help="dienophile SMILES (default: the config's, maleic anhydride)")
+    lk.add_argument("--dienophile", metavar="SMILES|NAME",
+                    help="dienophile SMILES or a common name as for rank (default: the config's, maleic anhydride)")
     lk.add_argument("--backend", choices=["xtb-python", "tblite"], help="GFN2-xTB backend (default: the config's)")
     lk.add_argument("--no-ts", action="store_true", help="skip the transition-structure search (default: search)")
     lk.add_argument("--no-profile", action="store_true", help="skip the torsion profile (default: scan)")

@@ -347,6 +347,9 @@ def resolve(config: Mapping, fallback: bool = True) -> Settings:
     if isinstance(config, Settings):
         return config
     cfg = _coerce(_thaw(config), load_schema())
+    if isinstance(cfg.get("dienophile"), str):
+        from .dienophiles import smiles_of
+        cfg["dienophile"] = smiles_of(cfg["dienophile"])     # a common dienophile may be named
     for old, why in REPLACED_KEYS.items():
         if old in cfg:
             raise ConfigError(f"invalid configuration: {why}")

@@ -453,6 +453,8 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
     labels = {name: m.get("level", "") for name, m in model.get("levels", {}).items()}
     gfn2 = settings.placing.name
     dph = settings["dienophile"]
+    from ..dienophiles import name_of
+    dph_named = f"{name_of(dph)} ({dph})" if name_of(dph) else dph
     reactive = list((model.get("dienophile") or {}).get("reactive_bond") or [])
     counts = sorted(table["status"].value_counts().to_dict().items())
     ranked = table[table["rank"].notna()]
@@ -476,8 +478,8 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
     page = env.get_template("page.html.j2").render(
         css=Markup(_asset("page.css")), js=Markup(_asset("page.js")), text=text(),   # noqa: S704 - our own files
         n_rows=len(table), counts=counts, generated=_dt.datetime.now().strftime("%Y-%m-%d %H:%M"),
-        try_first=try_first(table, model),
-        conditions={"depiction": depict(dph, reactive, reactive, 160, 110), "dienophile": dph,
+        try_first=try_first(table, model) | {"dienophile": dph_named},
+        conditions={"depiction": depict(dph, reactive, reactive, 160, 110), "dienophile": dph_named,
                     "temperature_K": settings["temperature_K"], "solvent": settings["solvent"],
                     "level": level_line(table, model), "scale": scale_text(model),
                     "interval": interval_label(model.get("interval", settings["model"]["interval"]))},

@@ -1,0 +1,34 @@
+"""Common dienophiles accepted by name."""
+import pytest
+from rdkit.Chem.rdMolDescriptors import CalcMolFormula
+
+from dienes import dienophiles
+from dienes.library import check_dienophile
+
+# molecular formulas of the named compounds (common practice: any chemical catalogue)
+FORMULAS = {"maleic anhydride": "C4H2O3", "maleimide": "C4H3NO2", "N-methylmaleimide": "C5H5NO2",
+            "N-phenylmaleimide": "C10H7NO2", "dimethyl acetylenedicarboxylate": "C6H6O4",
+            "dimethyl fumarate": "C6H8O4", "dimethyl maleate": "C6H8O4", "methyl acrylate": "C4H6O2",
+            "acrylonitrile": "C3H3N", "acrolein": "C3H4O", "methyl vinyl ketone": "C4H6O",
+            "p-benzoquinone": "C6H4O2", "tetracyanoethylene": "C6N4", "ethylene": "C2H4"}
+
+
+@pytest.mark.parametrize("name", sorted(dienophiles.COMMON))
+def test_each_name_is_its_compound_and_a_valid_dienophile(name):
+    from rdkit import Chem
+    smiles = dienophiles.smiles_of(name)
+    assert CalcMolFormula(Chem.MolFromSmiles(smiles)) == FORMULAS[name]
+    assert check_dienophile(smiles) == ""
+    assert dienophiles.name_of(smiles) == name
+
+
+def test_names_are_read_loosely_and_anything_else_is_smiles(config):
+    assert dienophiles.smiles_of("  n-Phenylmaleimide ") == dienophiles.COMMON["N-phenylmaleimide"]
+    assert dienophiles.smiles_of("DMAD") == "COC(=O)C#CC(=O)OC"
+    assert dienophiles.smiles_of("C=CC(=O)OCC") == "C=CC(=O)OCC"
+    # the fumarate and the maleate are different compounds (E and Z)
+    assert dienophiles.name_of("COC(=O)/C=C\\C(=O)OC") == "dimethyl maleate"
+    # a name in the config reaches every step as the SMILES the result files are named by
+    named = config | {"dienophile": "tetracyanoethylene"}
+    assert named["dienophile"] == "N#CC(C#N)=C(C#N)C#N"
+    assert named.transition_hash(named["dienophile"]) == config.transition_hash("N#CC(C#N)=C(C#N)C#N")

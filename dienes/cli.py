@@ -28,7 +28,7 @@ RANK_EXAMPLES = """examples:
   dienes rank my_dienes.csv
   dienes rank my_dienes.csv --dienophile 'C=CC(=O)OC' --cores 8
   dienes rank catalogue.sdf --quick --workdir runs/quick-screen
-  dienes rank my_dienes.smi --set temperature_K=313.15 --set solvent=toluene
+  dienes rank my_dienes.smi --temperature 313.15 --solvent toluene
 
 Library: CSV with columns id and smiles (.csv/.tsv), .smi (SMILES then id) or .sdf.
 Results go to WORKDIR/results (ranking.csv, report.html, dienes.sdf, model.json);
@@ -92,7 +92,7 @@ def _rank(args) -> int:
         shipped = cfg.load(configfile, fallback=False)
         levels = [shipped.placing.name] if args.quick else list(shipped["ranking"]["levels"])
         overrides.append(f"ranking={{levels: [{', '.join(levels)}], rows: {'all' if args.quick else args.rows}}}")
-    overrides += args.set or []
+    overrides += condition_overrides(args) + (args.set or [])
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
            "--directory", str(workdir), "--cores", str(args.cores), "--configfile", str(configfile),
@@ -115,6 +115,16 @@ def _rank(args) -> int:
         for line in summary_lines(read_table(ranking), workdir / "results", summary, top=args.top):
             print(line)
     return 0
+
+
+def condition_overrides(args) -> list[str]:
+    """--temperature and --solvent as config values (validated by the workflow before anything runs)."""
+    out = []
+    if args.temperature is not None:
+        out.append(f"temperature_K={args.temperature:g}")
+    if args.solvent is not None:
+        out.append(f"solvent={args.solvent}")
+    return out
 
 
 def _rows(text: str) -> str:
@@ -262,6 +272,17 @@ def _look_as_rank(args, dph_smiles: str) -> None:
 
 
 def main(argv=None) -> int:
+    args = parser().parse_args(argv)
+    try:
+        return args.func(args)
+    except KeyboardInterrupt:
+        return _fail("interrupted", 130)
+    except Exception as exc:  # noqa: BLE001 - the console prints one line, not a traceback
+        return _fail(f"{type(exc).__name__}: {exc}", 1)
+
+
+def parser() -> argparse.ArgumentParser:
+    """The `dienes` command's arguments."""
     ap = argparse.ArgumentParser(prog="dienes",
                                  description="Rank conjugated dienes by predicted Diels-Alder reactivity.")
     ap.add_argument("--version", action="version", version=f"dienes {__version__}")
@@ -288,6 +309,12 @@ def main(argv=None) -> int:
                      help="which dienes are recomputed at the density-functional level: all, or only the N best by "
                           "GFN2-xTB (risky: GFN2-xTB misorders the top); about a minute per diene on one core "
                           "(default: the config's ranking.rows, all)")
+    r.add_argument("--temperature", type=float, metavar="K",
+                   help="reaction temperature in kelvin: conformer weights and the free-energy barriers "
+                        "(default: the config's temperature_K, 298.15)")
+    r.add_argument("--solvent", metavar="NAME",
+                   help="implicit solvent around every GFN2-xTB structure, e.g. toluene (default: the config's "
+                        "solvent, none); the scale stays the reference kinetics'")
     r.add_argument("--workdir", default=".", help="where results/ and logs/ go (default: the current directory)")
     r.add_argument("--set", action="append", metavar="KEY=VALUE",
                    help="any other config value, e.g. temperature_K=313.15 (repeatable; default: none)")
@@ -308,13 +335,7 @@ def main(argv=None) -> int:
                     help="a directory with a finished `dienes rank`: its model gives the predicted log10 k, "
                          "interval, domain and level, as rank would (default: the current directory)")
     lk.set_defaults(func=_look)
-    args = ap.parse_args(argv)
-    try:
-        return args.func(args)
-    except KeyboardInterrupt:
-        return _fail("interrupted", 130)
-    except Exception as exc:  # noqa: BLE001 - the console prints one line, not a traceback
-        return _fail(f"{type(exc).__name__}: {exc}", 1)
+    return ap
 
 
 if __name__ == "__main__":

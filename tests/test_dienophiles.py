@@ -32,3 +32,17 @@ def test_names_are_read_loosely_and_anything_else_is_smiles(config):
     named = config | {"dienophile": "tetracyanoethylene"}
     assert named["dienophile"] == "N#CC(C#N)=C(C#N)C#N"
     assert named.transition_hash(named["dienophile"]) == config.transition_hash("N#CC(C#N)=C(C#N)C#N")
+
+
+def test_the_command_line_names_conditions_and_dienophiles(config):
+    # --temperature and --solvent become the config values the workflow validates; a bad solvent is
+    # refused by the same validation (one line)
+    from dienes import cli
+    from dienes import settings as cfg
+    args = cli.parser().parse_args(["rank", "lib.csv", "--temperature", "313.15", "--solvent", "toluene",
+                                    "--dienophile", "N-phenylmaleimide"])
+    assert cli.condition_overrides(args) == ["temperature_K=313.15", "solvent=toluene"]
+    s = config | {"temperature_K": 313.15, "solvent": "toluene", "dienophile": args.dienophile}
+    assert s["temperature_K"] == 313.15 and s["dienophile"] == "O=C1C=CC(=O)N1c1ccccc1"
+    with pytest.raises(cfg.ConfigError, match="solvent"):
+        config | {"solvent": "dioxane-ish"}

@@ -157,8 +157,8 @@ def _look(args) -> int:
     config = settings
     st = settings.structure_settings()
     from .dienophiles import smiles_of
-    dph_smiles = smiles_of(args.dienophile) if args.dienophile else config["dienophile"]
     args.dienophile = smiles_of(args.dienophile) if args.dienophile else None
+    dph_smiles = args.dienophile or config["dienophile"]
     problem = check_dienophile(dph_smiles)
     if problem:
         return _fail(f"dienophile {dph_smiles!r}: {problem}")

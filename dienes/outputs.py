@@ -89,15 +89,12 @@ def level_text(summary: dict) -> str:
     model = ranking_model(summary)
     if not model:
         return "no level's model could be fitted (see model.json)"
-    name, levels = summary["ranking_level"], summary.get("ranking_levels", [])
-    after = [lv for lv in levels[levels.index(name) + 1:]] if name in levels else []
     kind = ("free-energy barriers (GFN2-xTB thermal corrections)" if model.get("barrier_kind") == "free_energy"
             else "electronic barriers")
     if model.get("level") == "GFN2-xTB":
         return ("barriers at the GFN2-xTB level only: a quick screen (GFN2-xTB over-rewards alkyl groups "
                 "and large flat dienes; rank at a density-functional level before trusting the top)")
-    return (f"{kind} at {name} ({model.get('level')}) on GFN2-xTB structures"
-            + (f" (rows marked * are ranked at {', '.join(after)}: their {name} value failed)" if after else ""))
+    return f"{kind} at {summary['ranking_level']} ({model.get('level')}) on GFN2-xTB structures"
 
 
 def scale_line(summary: dict) -> str:

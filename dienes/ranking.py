@@ -23,8 +23,6 @@ TS_COLUMNS = ("intrinsic_barrier_kJmol", "distortion_kJmol", "dienophile_distort
               "reaction_energy_kJmol", "model_barrier_kJmol", "ts_imag_cm1", "face_gap_kJmol",
               "orientation_gap_kJmol")
 RANKED_STATUSES = ("ok", "ts_unverified")
-# what a level gives each site, as <level>_<name> in the sites table
-LEVEL_SITE_COLUMNS = ("barrier_kJmol", "electronic_barrier_kJmol", "status", "message")
 # a level's prediction for a site, as <level>_<name>
 PREDICTION_COLUMNS = ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage", "in_domain", "domain_note")
 # what ranks a row, unprefixed: the values of the level named in its `level` column
@@ -141,10 +139,6 @@ def level_features(level, result: dict | None, label: str) -> dict:
     return say("ok", "")
 
 
-def _usable_sites(result: dict) -> list[dict]:
-    return [s for s in result.get("sites", []) if s["status"] == "ok"]
-
-
 def _levels_computed(settings) -> list:
     """The ranking levels, and the one that places the atoms (its barrier picks a reference
     diene's site) where ranking.levels leaves it out."""
@@ -156,6 +150,7 @@ def record_sites(rec: dict, computed: Computed, settings) -> list[dict]:
     """Feature rows of every computed site of every isomer of one record, with each
     ranking level's barrier."""
     dph = computed.dienophiles.get(rec["dienophile"]["dhash"])
+    levels = _levels_computed(settings)
     rows = []
     for iso in rec["isomers"]:
         res = computed.structures.get(iso["key"], {"status": "missing", "message": "no result file"})
@@ -170,7 +165,7 @@ def record_sites(rec: dict, computed: Computed, settings) -> list[dict]:
             if site["status"] == "ok" and dph is not None:
                 row.update(site_features(site, dph, ts.get("sites", {}).get(site["label"]), iso["smiles"]))
                 row["regio_hint"] = site_regio_hint(site, dph, row["demand"])
-                for level in _levels_computed(settings):
+                for level in levels:
                     result = (ts if level.places_atoms
                               else computed.levels.get(level.name, {}).get(row["transition_key"]))
                     feats = level_features(level, result, site["label"])

@@ -185,11 +185,14 @@ class Settings(Mapping):
     """The validated config of a run, read-only (mappings come back as read-only views,
     lists as tuples), with its levels and the hashes that name result files."""
 
-    __slots__ = ("_data", "backend_note")
+    __slots__ = ("_data", "backend_note", "_levels")
 
     def __init__(self, data: dict, backend_note: str = ""):
         object.__setattr__(self, "_data", _freeze(data))
         object.__setattr__(self, "backend_note", backend_note)
+        object.__setattr__(self, "_levels", {
+            name: Level(name, spec["program"], tuple(sorted((k, v) for k, v in spec.items() if k != "program")))
+            for name, spec in data["levels"].items()})
 
     def __setattr__(self, name, value):
         raise AttributeError("Settings are read-only: build new ones with replace()")
@@ -222,8 +225,7 @@ class Settings(Mapping):
     # ------------------------------------------------------------ levels
     @property
     def levels(self) -> dict[str, Level]:
-        return {name: Level(name, spec["program"], tuple(sorted((k, v) for k, v in spec.items() if k != "program")))
-                for name, spec in self._data["levels"].items()}
+        return dict(self._levels)
 
     @property
     def placing(self) -> Level:
@@ -346,14 +348,14 @@ def resolve(config: Mapping, fallback: bool = True) -> Settings:
     a GFN2-xTB backend this Python lacks is replaced by the other one, once, and recorded."""
     if isinstance(config, Settings):
         return config
-    cfg = _coerce(_thaw(config), load_schema())
+    schema = load_schema()
+    cfg = _coerce(_thaw(config), schema)
     if isinstance(cfg.get("dienophile"), str):
         from .dienophiles import smiles_of
         cfg["dienophile"] = smiles_of(cfg["dienophile"])     # a common dienophile may be named
     for old, why in REPLACED_KEYS.items():
         if old in cfg:
             raise ConfigError(f"invalid configuration: {why}")
-    schema = load_schema()
     if isinstance(cfg.get("levels"), dict):
         _level_defaults(cfg["levels"], schema)
     errors = sorted(_with_defaults(Draft202012Validator)(schema).iter_errors(cfg), key=lambda e: list(e.path))

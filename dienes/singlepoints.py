@@ -43,8 +43,8 @@ Barriers (kJ/mol) at the level, per priced site:
   never had. The level's ``barrier`` (config ``levels``) names the one the model uses.
 
 An SCF that does not converge (after the second-order fallback) gives the
-status ``scf_failed`` naming the structure; the row then keeps its GFN2-xTB
-values and says so.
+status ``scf_failed`` naming the structure; the row is then ranked at the next level
+of ``ranking.levels`` and says so.
 """
 
 from __future__ import annotations

@@ -21,6 +21,7 @@ from markupsafe import Markup
 from rdkit import Chem
 from rdkit.Chem.Draw import rdMolDraw2D
 
+from ..dienophiles import name_of
 from ..outputs import (accuracy_text, hours_text, interval_label, is_true, level_text, scale_text, time_text,
                        times_text)
 from ..ranking import col, ranking_model
@@ -453,7 +454,6 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
     labels = {name: m.get("level", "") for name, m in model.get("levels", {}).items()}
     gfn2 = settings.placing.name
     dph = settings["dienophile"]
-    from ..dienophiles import name_of
     dph_named = f"{name_of(dph)} ({dph})" if name_of(dph) else dph
     reactive = list((model.get("dienophile") or {}).get("reactive_bond") or [])
     counts = sorted(table["status"].value_counts().to_dict().items())

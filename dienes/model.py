@@ -14,8 +14,13 @@ Extra descriptors (``candidates``) join the base features one at a time, only
 when they lower the LOO RMSE by at least MIN_GAIN; the honest error of that
 choice is measured by repeating it inside every leave-one-out fold.
 
-Prediction intervals come from the least-squares formula with the fitted
-residual spread (t distribution). The applicability domain looks at every
+Prediction intervals come from the model's own leave-one-out residuals (heavy tails
+included): each residual is put on one scale, |y_i - y_cv_i| sqrt(1 - h_i) (a leave-one-out
+residual of a point with leverage h_i has variance sigma^2 / (1 - h_i)), and the half-width at a
+new point is q sqrt(1 + h0), q the ceil((n + 1) c)-th smallest scaled residual for coverage c
+(the split-conformal rank rule; the largest residual widened by the t-quantile ratio where n is
+too small for that rank). Without leave-one-out residuals the least-squares t interval is used.
+The applicability domain looks at every
 descriptor of the model, fixed-slope ones included: the leverage
 h = x0' (X'X)^-1 x0 against the usual 3 p / n cut-off (common practice) and
 each descriptor's reference range widened by RANGE_MARGIN of its span.
@@ -23,6 +28,7 @@ each descriptor's reference range widened by RANGE_MARGIN of its span.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, asdict
 
 import numpy as np
@@ -58,6 +64,7 @@ class Fit:
     fixed: int | None = None
     xtx_inv: list = field(default_factory=list)
     x_train: list = field(default_factory=list)
+    loo_scaled_residuals: list = field(default_factory=list)
 
     @property
     def fixed_feature(self) -> str | None:
@@ -67,6 +74,7 @@ class Fit:
         d = asdict(self)
         d.pop("xtx_inv")
         d.pop("x_train")
+        d.pop("loo_scaled_residuals")
         return d
 
 
@@ -126,18 +134,65 @@ def fit(X: np.ndarray, y: np.ndarray, features: list[str], variant: str,
                intercept, resid_sd, dof, n, fixed_k, xtx_inv.tolist(), X.tolist())
 
 
-def predict(model: Fit, X: np.ndarray, interval: float = 0.9):
-    """Predictions for raw features X (m, p): (log10_k, low, high) with the
-    `interval` prediction interval from the free (fitted) features' leverage."""
+def leverage(model: Fit, X: np.ndarray) -> np.ndarray:
+    """Leverage of raw feature rows X (m, p) in the model's fit (its free features and intercept)."""
     X = np.atleast_2d(np.asarray(X, dtype=float))
-    pred = X @ np.asarray(model.coef_per_unit) + model.intercept
     Z = _design(X, np.asarray(model.mean), np.asarray(model.scale))
     free = [k for k in range(len(model.features)) if k != model.fixed]
     A = np.column_stack([np.ones(len(X)), Z[:, free]])
-    leverage = np.einsum("ij,jk,ik->i", A, np.asarray(model.xtx_inv), A)
-    t = stats.t.ppf(0.5 + interval / 2.0, model.dof)
-    half = t * model.resid_sd * np.sqrt(1.0 + leverage)
+    return np.einsum("ij,jk,ik->i", A, np.asarray(model.xtx_inv), A)
+
+
+def conformal_scale(scaled_residuals, interval: float, dof: int) -> float:
+    """q of the module text: the ceil((n + 1) c)-th smallest scaled residual."""
+    r = np.sort(np.abs(np.asarray(scaled_residuals, dtype=float)))
+    n = len(r)
+    rank = math.ceil((n + 1) * interval)
+    if rank <= n:
+        return float(r[rank - 1])
+    # too few residuals for that rank: widen the largest by how much further the t tail reaches
+    t_at_max = stats.t.ppf(1.0 - 0.5 / (n + 1), dof)
+    return float(r[-1] * stats.t.ppf(0.5 + interval / 2.0, dof) / t_at_max) if r[-1] > 0 else 0.0
+
+
+def with_loo_residuals(model: Fit, y, y_cv) -> Fit:
+    """The fit with its leave-one-out residuals attached (intervals then come from them)."""
+    h = np.clip(leverage(model, np.asarray(model.x_train)), 0.0, 0.99)
+    model.loo_scaled_residuals = (np.abs(np.asarray(y) - np.asarray(y_cv)) * np.sqrt(1.0 - h)).tolist()
+    return model
+
+
+def half_width(model: Fit, lev, interval: float) -> np.ndarray:
+    """Half-width of the prediction interval at leverage(s) `lev`."""
+    lev = np.asarray(lev, dtype=float)
+    if model.loo_scaled_residuals:
+        return conformal_scale(model.loo_scaled_residuals, interval, model.dof) * np.sqrt(1.0 + lev)
+    return stats.t.ppf(0.5 + interval / 2.0, model.dof) * model.resid_sd * np.sqrt(1.0 + lev)
+
+
+def predict(model: Fit, X: np.ndarray, interval: float = 0.9):
+    """Predictions for raw features X (m, p): (log10_k, low, high) with the `interval`
+    prediction interval (see the module text)."""
+    X = np.atleast_2d(np.asarray(X, dtype=float))
+    pred = X @ np.asarray(model.coef_per_unit) + model.intercept
+    half = half_width(model, leverage(model, X), interval)
     return pred, pred - half, pred + half
+
+
+def loo_coverage(model: Fit, y, y_cv, interval: float) -> tuple[float, list[tuple[float, float]]]:
+    """How often a reference value lies inside the interval built without it: for each i, the
+    interval around its leave-one-out prediction from the other residuals' scale. Returns
+    (fraction inside, [(low, high)] per reference row)."""
+    s = np.asarray(model.loo_scaled_residuals, dtype=float)
+    h = np.clip(leverage(model, np.asarray(model.x_train)), 0.0, 0.99)
+    bounds, inside = [], []
+    for i in range(len(s)):
+        q = conformal_scale(np.delete(s, i), interval, model.dof)
+        # the leave-one-out prediction's own leverage in the fold without it: h / (1 - h)
+        half = q * math.sqrt(1.0 + h[i] / (1.0 - h[i]))
+        bounds.append((float(y_cv[i] - half), float(y_cv[i] + half)))
+        inside.append(bounds[-1][0] <= y[i] <= bounds[-1][1])
+    return float(np.mean(inside)), bounds
 
 
 def domain(model: Fit, X: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[list[str]]]:

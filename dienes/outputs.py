@@ -80,7 +80,8 @@ def scale_text(summary: dict) -> str:
     model = ranking_model(summary)
     run = summary.get("run_dienophile", "")
     same = model.get("note", "") == ""
-    return (f"log10 k relative to 1,3-butadiene, scale set by the reference kinetics with "
+    return (f"log10 k relative to the measured rate of 1,3-butadiene with the same dienophile (0 = butadiene; "
+            f"x butadiene = 10^log10 k), scale set by the reference kinetics with "
             f"{model.get('base_dienophile', '')}" + ("" if same else f" (the run's dienophile {run} is not among them)"))
 
 

@@ -208,7 +208,8 @@ def reference_rows(reference: list[dict], computed: Computed, settings) -> pd.Da
     rows = []
     seen: dict[tuple, str] = {}      # (structure key, dienophile) -> id of the row that measured it
     for rec in reference:
-        row = {"id": rec["id"], "smiles": rec["smiles"], "usable": False, "reason": ""}
+        row = {"id": rec["id"], "name": rec["extra"].get("name", ""), "smiles": rec["smiles"], "usable": False,
+               "reason": ""}
         pair = (tuple(i["key"] for i in rec["isomers"]), canonical(rec["dienophile"]["smiles"]))
         try:
             row["log10_k"] = float(rec["extra"].get("log10_k", "nan"))
@@ -290,10 +291,21 @@ def fit_reference(ref_table: pd.DataFrame, settings, level):
     features, trail = mdl.choose_features(columns, y, base + term_names, cands, T_ref, max_added)
     X = np.column_stack([columns[f] for f in features])
     fit, comparison, y_cv = mdl.select(X, y, features, T_ref)
+    fit = mdl.with_loo_residuals(fit, y, y_cv)
+    coverage, bounds = mdl.loo_coverage(fit, y, y_cv, float(model["interval"]))
     honest = mdl.nested_cv(columns, y, base + term_names, cands, T_ref, max_added) if cands and max_added \
         else None
     table.loc[used.index, "log10_k_cv"] = y_cv
     table.loc[used.index, "log10_k_fit"] = mdl.predict(fit, X)[0]
+    table.loc[used.index, "log10_k_cv_low"] = [b[0] for b in bounds]
+    table.loc[used.index, "log10_k_cv_high"] = [b[1] for b in bounds]
+    table.loc[used.index, "inside_interval"] = [lo <= v <= hi for (lo, hi), v in zip(bounds, y)]
+    classes = [site_class(k, a) for k, a in zip(used["site_kind"], used["aromatic"])]
+    outside = [{"id": i, "name": nm, "smiles": sm, "class": c, "log10_k": round(float(v), 3),
+                "log10_k_cv": round(float(p), 3), "low": round(lo, 3), "high": round(hi, 3)}
+               for i, nm, sm, c, v, p, (lo, hi) in zip(used["id"], used.get("name", used["id"]), used["smiles"],
+                                                      classes, y, y_cv, bounds)
+               if not lo <= v <= hi]
     ols = mdl.fit(X, y, features, "ols", T_ref)
     physical = -mdl.log10_units_per_kjmol(T_ref)
     summary = {"name": level.name, "level": level.label(), "barrier_kind": level.barrier,
@@ -310,12 +322,16 @@ def fit_reference(ref_table: pd.DataFrame, settings, level):
                "ols_coefficients": dict(zip(features, ols.coef_per_unit)),
                "ols_coefficient_se": dict(zip(features, ols.coef_se)),
                "interval": model["interval"], "note": note,
+               "interval_method": "leave-one-out residuals (scaled by leverage, conformal rank rule)",
+               "interval_coverage_loo": round(coverage, 3), "outside_interval": outside,
+               "feature_means": dict(zip(features, fit.mean)),
                "training_classes": sorted({site_class(k, a) for k, a in
                                            zip(used["site_kind"], used["aromatic"])})}
     if honest is not None:
         summary["nested_cv"] = {k: v for k, v in honest.items() if k != "predictions"}
         table.loc[used.index, "log10_k_nested_cv"] = honest["predictions"]
-    keep = ["used", "level_reason", "log10_k_cv", "log10_k_fit", "log10_k_nested_cv"]
+    keep = ["used", "level_reason", "log10_k_cv", "log10_k_cv_low", "log10_k_cv_high", "inside_interval",
+            "log10_k_fit", "log10_k_nested_cv"]
     view = table[[c for c in keep if c in table]].rename(columns={"level_reason": "reason"})
     return fit, summary, view.add_prefix(f"{level.name}_")
 
@@ -534,35 +550,120 @@ def ranking_model(summary: dict) -> dict:
 
 def yardstick(table: pd.DataFrame, ref_table: pd.DataFrame, summary: dict,
               smiles: str = YARDSTICK_SMILES) -> tuple[dict, str]:
-    """The model's own log10 k for one diene (butadiene by default) with the run's dienophile,
-    per ranking level ({level name: log10 k}), and where it came from: a library row that is
-    that diene, else its reference row measured with the run's dienophile. ({}, why) when neither."""
+    """One diene's log10 k on the reference scale with the run's dienophile, per ranking level
+    ({level name: log10 k}), and where it came from: its measured value where the reference
+    set has it with the run's dienophile (the same at every level), else the model's value for
+    a library row that is that diene, else for its reference row. ({}, why) when none."""
     bd = _canonical_or_none(smiles)
     levels = summary.get("ranking_levels", [])
+    run_dph = canonical(summary.get("run_dienophile", ""))
+    ref = ref_table[(ref_table["smiles"].map(_canonical_or_none) == bd)
+                    & (ref_table["dienophile_smiles"].map(_canonical_or_none) == run_dph)] if len(ref_table) else []
+    if len(ref) and np.isfinite(ref.iloc[0]["log10_k"]):
+        return {lv: float(ref.iloc[0]["log10_k"]) for lv in levels}, f"measured, reference row {ref.iloc[0]['id']}"
     lib = table[table["rank"].notna() & (table["smiles"].map(_canonical_or_none) == bd)]
     if len(lib):
         r = lib.iloc[0]
         out = {lv: float(r[col(lv, "log10_k_pred")]) for lv in levels if pd.notna(r.get(col(lv, "log10_k_pred")))}
-        return out, f"library row {r['id']}"
-    run_dph = canonical(summary.get("run_dienophile", ""))
+        return out, f"predicted, library row {r['id']}"
+    return {}, f"{smiles} was not computed with this dienophile: add it to the library to get half-lives"
+
+
+def _term_name(feature: str) -> str:
+    """'barrier_kJmol' -> 'term_barrier_log10k'; every dienophile indicator -> 'term_dienophile_log10k'."""
+    if feature.startswith("dienophile["):
+        return "term_dienophile_log10k"
+    for unit in ("_kJmol", "_eV", "_A", "_deg", "_cm1"):
+        if feature.endswith(unit):
+            feature = feature[: -len(unit)]
+    return f"term_{feature}_log10k"
+
+
+TERM_WORDS = {"term_barrier_log10k": "barrier", "term_homo_log10k": "HOMO", "term_lumo_log10k": "LUMO",
+              "term_dienophile_log10k": "dienophile", "term_scis_penalty_log10k": "s-cis penalty"}
+
+
+def model_terms(table: pd.DataFrame, summary: dict) -> pd.DataFrame:
+    """Each model term's share of a ranked row's log10_k_pred, at the row's level:
+    baseline_log10k (the prediction for the average reference diene) plus one term_<x>_log10k
+    per descriptor, coefficient x (value - reference mean), which add up to log10_k_pred;
+    model_terms says the same in words."""
+    out = pd.DataFrame(index=table.index)
+    out["baseline_log10k"] = np.nan
+    texts = pd.Series("", index=table.index, dtype=object)
+    for name, model in summary.get("levels", {}).items():
+        if "coefficients" not in model:
+            continue
+        mask = (table["level"] == name) & table["log10_k_pred"].notna()
+        if not mask.any():
+            continue
+        coef, means = model["coefficients"], model.get("feature_means", {})
+        run = canonical(model.get("run_dienophile", ""))
+        base = model["intercept"] + sum(coef[f] * means[f] for f in coef)
+        out.loc[mask, "baseline_log10k"] = base
+        for f, c in coef.items():
+            if f.startswith("dienophile["):
+                x = pd.Series(1.0 if canonical(model["dienophile_terms"][f]) == run else 0.0, index=table.index)
+            else:
+                x = table[f].astype(float)
+            term = _term_name(f)
+            if term not in out:
+                out[term] = np.nan
+            out.loc[mask, term] = out.loc[mask, term].fillna(0.0) + c * (x[mask] - means[f])
+    terms = [c for c in out.columns if c.startswith("term_")]
+    for idx in out.index[out["baseline_log10k"].notna()]:
+        parts = [f"{TERM_WORDS.get(t, t[5:-7])} {out.at[idx, t]:+.2f}" for t in terms if pd.notna(out.at[idx, t])]
+        texts[idx] = ", ".join(parts) + f" (log10 units against the average reference diene, {out.at[idx, 'baseline_log10k']:+.2f})"
+    out["model_terms"] = texts
+    return out
+
+
+def calibration_notes(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame) -> pd.DataFrame:
+    """reference_log10_k: a row's measured value on the scale where the reference set has the
+    diene with the run's dienophile; calibration_note: whether that value lies inside the row's
+    interval, and, for every row whose class holds a reference diene that lies outside its own
+    leave-one-out interval, which one and in which direction."""
+    out = pd.DataFrame({"reference_log10_k": np.nan, "calibration_note": ""}, index=table.index)
+    run = canonical(summary.get("run_dienophile", ""))
+    measured = {}
     if len(ref_table):
-        ref = ref_table[(ref_table["smiles"].map(_canonical_or_none) == bd)
-                        & (ref_table["dienophile_smiles"].map(_canonical_or_none) == run_dph)]
-        if len(ref):
-            r = ref.iloc[0]
-            out = {lv: float(r[col(lv, "log10_k_fit")]) for lv in levels if pd.notna(r.get(col(lv, "log10_k_fit")))}
-            if out:
-                return out, f"reference row {r['id']}"
-    return {}, (f"{smiles} was not computed with this dienophile: add it to the library to get "
-                + ("times_faster_than_butadiene" if smiles == YARDSTICK_SMILES else "half-lives"))
+        for _, r in ref_table.iterrows():
+            if _canonical_or_none(r["dienophile_smiles"]) == run and np.isfinite(r["log10_k"]):
+                measured.setdefault(_canonical_or_none(r["smiles"]), (float(r["log10_k"]), r["id"]))
+    levels = summary.get("levels", {})
+    for idx, r in table[table["log10_k_pred"].notna()].iterrows():
+        notes = []
+        hit = measured.get(_canonical_or_none(r["smiles"]))
+        if hit:
+            v, rid = hit
+            out.at[idx, "reference_log10_k"] = v
+            inside = r["log10_k_low"] <= v <= r["log10_k_high"]
+            notes.append(f"measured {v:.2f} ({rid}) {'inside' if inside else 'outside'} this interval"
+                         + ("" if inside else (": the model puts it too low" if v > r["log10_k_high"]
+                                               else ": the model puts it too high")))
+            own = [m for m in levels.get(str(r["level"]), {}).get("outside_interval", []) if m["id"] == rid]
+            if own:
+                notes.append(f"left out of the fit, the model misses it: leave-one-out interval {own[0]['low']:.2f} "
+                             f"to {own[0]['high']:.2f}")
+        cls = site_class(r["site_kind"], r.get("aromatic")) if isinstance(r.get("site_kind"), str) else None
+        for miss in levels.get(str(r["level"]), {}).get("outside_interval", []):
+            if miss["class"] == cls and not (hit and _canonical_or_none(miss["smiles"]) == _canonical_or_none(r["smiles"])):
+                way = "above" if miss["log10_k"] > miss["high"] else "below"
+                notes.append(f"reference {miss['name'] or miss['id']} of this class ({cls}) lies {way} its own "
+                             f"leave-one-out interval (measured {miss['log10_k']:.2f}, interval {miss['low']:.2f} to "
+                             f"{miss['high']:.2f})")
+        out.at[idx, "calibration_note"] = "; ".join(notes)
+    return out
 
 
 def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
                anchor: dict | None = None) -> tuple[pd.DataFrame, dict]:
     """What a chemist reads first, added to the ranking table:
 
-    - times_faster_than_butadiene: 10^(log10 k - log10 k of butadiene), both predicted by the
-      row's model with the run's dienophile (see `yardstick`);
+    - times_faster_than_butadiene: 10^log10_k_pred. log10_k_pred is on the reference set's
+      scale (log10 of k relative to butadiene's measured k with the same dienophile), so the two
+      say the same thing; butadiene's own row shows its prediction, not 1;
+    - the model's terms per row (see `model_terms`) and calibration notes (`calibration_notes`);
     - tier: ranked rows cut into groups the model can tell apart. Walking down the ranking, a
       new tier starts where a row lies more than sqrt(2) x the leave-one-out RMSE below the
       first row of the current tier: two predictions each off by about one RMSE differ by
@@ -577,9 +678,8 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
     Returns (table, summary additions)."""
     out = table.copy()
     yard, source = yardstick(out, ref_table, summary)
-    base = out["level"].map(lambda lv: yard.get(str(lv), np.nan)).astype(float)
-    out["times_faster_than_butadiene"] = np.where(out["log10_k_pred"].notna() & base.notna(),
-                                                  10.0 ** (out["log10_k_pred"].astype(float) - base), np.nan)
+    out["times_faster_than_butadiene"] = 10.0 ** out["log10_k_pred"].astype(float)
+    out = pd.concat([out, model_terms(out, summary), calibration_notes(out, summary, ref_table)], axis=1)
     model = ranking_model(summary)
     rmse = float(model.get("cv_rmse_log10k", np.nan))
     width = math.sqrt(2.0) * rmse
@@ -612,13 +712,19 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
         half_life |= {"smiles": anchor["smiles"], "k_L_per_mol_s": float(anchor["k_L_per_mol_s"]),
                       "concentration_M": float(anchor["concentration_M"]), "source": where}
     new_cols = [("tier", "rank"), ("dienophile_in_reference", "in_domain"),
-                ("times_faster_than_butadiene", "log10_k_high")]
+                ("times_faster_than_butadiene", "log10_k_high"), ("reference_log10_k", "times_faster_than_butadiene"),
+                ("model_terms", "reference_log10_k"), ("calibration_note", "domain_note"),
+                ("baseline_log10k", "level_method")]
+    after = "baseline_log10k"
+    for term in [c for c in out.columns if c.startswith("term_")]:
+        new_cols.append((term, after))
+        after = term
     if half_life["given"]:
         new_cols.append(("half_life_h", "times_faster_than_butadiene"))
     cols = list(out.columns)
     for new, after in new_cols:
         cols.remove(new)
-        cols.insert(cols.index(after) + 1, new)
+        cols.insert(cols.index(after) + 1 if after in cols else len(cols), new)
     out = out[cols]
     pairwise = float(model.get("cv_pairwise_accuracy", np.nan))
     extra = {"bench": {
@@ -627,5 +733,6 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
         "tiers": int(out["tier"].max()) if out["tier"].notna().any() else 0,
         "pairs_right_of_10": round(10 * pairwise) if np.isfinite(pairwise) else None,
         "typical_factor": round(10 ** rmse, 1) if np.isfinite(rmse) else None,
+        "interval": model.get("interval"), "interval_coverage_loo": model.get("interval_coverage_loo"),
         "dienophile_in_reference": in_ref, "half_life": half_life}}
     return out, extra

@@ -180,6 +180,15 @@ def _domain(row) -> tuple[str, str]:
     return "out", note
 
 
+def coverage_text(model: dict) -> str:
+    """How often the intervals held on the reference set, left out one at a time."""
+    cov = model.get("interval_coverage_loo")
+    if cov is None:
+        return ""
+    return (f"from the reference set's leave-one-out residuals; they held for {round(100 * cov)} % of the "
+            f"{model.get('n_reference', '?')} reference dienes, each left out of the fit in turn")
+
+
 def columns(others: list[str]) -> list[dict]:
     """The ranking table's columns: header, sortable, secondary (hidden in the compact view), help."""
     spec = [("rank", True, False), ("tier", True, False), ("structure", False, False), ("id", True, False),
@@ -225,6 +234,8 @@ def table_rows(table: pd.DataFrame, others: list[str]) -> list[dict]:
                      if ranked else ""),
             "pred_sort": _num(r["log10_k_pred"], "{:.4f}"),
             "times": times_text(r.get("times_faster_than_butadiene")) if ranked else "",
+            "terms": _text(r.get("model_terms")).split(" (log10")[0] if ranked else "",
+            "calibration": _text(r.get("calibration_note")) if ranked else "",
             "times_sort": _num(r.get("times_faster_than_butadiene"), "{:.6g}"),
             "level": _text(r.get("level")) if ranked else "",
             "barrier": _num(r["barrier_kJmol"], "{:.1f}") if ranked else "",
@@ -482,7 +493,8 @@ def build(table: pd.DataFrame, sites: pd.DataFrame, model: dict, reference: pd.D
         conditions={"depiction": depict(dph, reactive, reactive, 160, 110), "dienophile": dph_named,
                     "temperature_K": settings["temperature_K"], "solvent": settings["solvent"],
                     "level": level_line(table, model), "scale": scale_text(model),
-                    "interval": interval_label(model.get("interval", settings["model"]["interval"]))},
+                    "interval": interval_label(model.get("interval", settings["model"]["interval"])),
+                    "coverage": coverage_text(ranking_model(model))},
         fast_limits={"n": n_gfn2, "ranked": len(ranked)} if n_gfn2 else None,
         reference_caution=reference_caution(reference),
         filters={"statuses": sorted(table["status"].dropna().unique()),

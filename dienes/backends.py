@@ -376,6 +376,38 @@ def dft_energy(numbers, positions_A, settings: DFTSettings, *, ghost=(), threads
                        dispersion_kJmol=float(units.hartree_to_kjmol(disp_h)))
 
 
+def dft_energy_forces(numbers, settings: DFTSettings, threads: int | None = None):
+    """positions (Angstrom) -> (energy eV, forces eV/Angstrom) at a density-functional level with
+    analytic gradients (PySCF), for the optimisers of dienes.optimize and dienes.saddle. The SCF
+    restarts from the previous step's density. Methods with a second-order term have no
+    gradient here."""
+    from pyscf import dft, lib
+    xc, c_os, c_ss = second_order_parts(settings.method)
+    if c_os or c_ss or settings.solvent:
+        raise ValueError(f"no analytic gradient here for {settings.label()}")
+    if threads:
+        lib.num_threads(int(threads))
+    state = {"dm": None}
+
+    def energy_forces(positions_A):
+        mol = _pyscf_mol(numbers, positions_A, settings.basis)
+        mf = dft.RKS(mol)
+        mf.xc = xc
+        if settings.density_fit:
+            mf = mf.density_fit()
+        if settings.dispersion:
+            mf.disp = settings.dispersion
+        mf.grids.level = settings.grid_level
+        mf.conv_tol = min(settings.conv_tol_hartree, 1e-8)
+        e_h = mf.kernel(dm0=state["dm"])
+        if not mf.converged:
+            raise BackendError(f"{settings.label()} SCF did not converge during an optimisation")
+        state["dm"] = mf.make_rdm1()
+        grad = mf.nuc_grad_method().kernel()
+        return float(units.hartree_to_ev(e_h)), units.gradient_to_forces_ev_angstrom(np.asarray(grad))
+    return energy_forces
+
+
 def second_order_correlation_hartree(mf, c_os: float, c_ss: float) -> float:
     """Spin-scaled MP2 correlation (Hartree) on a converged closed-shell SCF's orbitals and
     orbital energies: density-fitted with the orbital basis's MP2 fitting basis, core frozen."""

@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from . import model as mdl
+from .chemistry import chemistry_note
 from .orbitals import regio_hint
 
 TS_COLUMNS = ("intrinsic_barrier_kJmol", "distortion_kJmol", "dienophile_distortion_kJmol", "interaction_kJmol",
@@ -680,6 +681,7 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
     yard, source = yardstick(out, ref_table, summary)
     out["times_faster_than_butadiene"] = 10.0 ** out["log10_k_pred"].astype(float)
     out = pd.concat([out, model_terms(out, summary), calibration_notes(out, summary, ref_table)], axis=1)
+    out["chemistry_note"] = out["smiles"].map(chemistry_note)
     model = ranking_model(summary)
     rmse = float(model.get("cv_rmse_log10k", np.nan))
     width = math.sqrt(2.0) * rmse
@@ -714,6 +716,7 @@ def bench_view(table: pd.DataFrame, summary: dict, ref_table: pd.DataFrame,
     new_cols = [("tier", "rank"), ("dienophile_in_reference", "in_domain"),
                 ("times_faster_than_butadiene", "log10_k_high"), ("reference_log10_k", "times_faster_than_butadiene"),
                 ("model_terms", "reference_log10_k"), ("calibration_note", "domain_note"),
+                ("chemistry_note", "message"),
                 ("baseline_log10k", "level_method")]
     after = "baseline_log10k"
     for term in [c for c in out.columns if c.startswith("term_")]:

@@ -196,8 +196,8 @@ def columns(others: list[str]) -> list[dict]:
             ("x butadiene", True, False), ("level", True, False), ("barrier kJ/mol", True, False)]
     spec += [(f"barrier {name} kJ/mol", True, True) for name in others]
     spec += [("s-cis penalty kJ/mol (GFN2-xTB)", True, False), ("HOMO eV", True, True), ("LUMO eV", True, True),
-             ("regio (orbitals)", False, True), ("regio (saddle)", False, True), ("endo/exo", False, True),
-             ("reaction energy kJ/mol", True, True), ("site", True, False), ("message", False, False)]
+             ("regio (orbitals)", False, True), ("regio (saddle), GFN2-xTB", False, True),
+             ("endo/exo, GFN2-xTB", False, True), ("reaction energy kJ/mol, GFN2-xTB", True, True), ("site", True, False), ("message", False, False)]
     glossary = text()["columns"]
 
     def help_for(header):
@@ -236,6 +236,7 @@ def table_rows(table: pd.DataFrame, others: list[str]) -> list[dict]:
             "times": times_text(r.get("times_faster_than_butadiene")) if ranked else "",
             "terms": _text(r.get("model_terms")).split(" (log10")[0] if ranked else "",
             "calibration": _text(r.get("calibration_note")) if ranked else "",
+            "chemistry": _text(r.get("chemistry_note")),
             "times_sort": _num(r.get("times_faster_than_butadiene"), "{:.6g}"),
             "level": _text(r.get("level")) if ranked else "",
             "barrier": _num(r["barrier_kJmol"], "{:.1f}") if ranked else "",

@@ -93,6 +93,7 @@ def _rank(args) -> int:
         levels = [shipped.placing.name] if args.quick else list(shipped["ranking"]["levels"])
         overrides.append(f"ranking={{levels: [{', '.join(levels)}], rows: {'all' if args.quick else args.rows}}}")
     overrides += condition_overrides(args) + (args.set or [])
+    print(run_estimate(library, workdir, args.cores, quick=args.quick), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
            "--directory", str(workdir), "--cores", str(args.cores), "--configfile", str(configfile),
@@ -115,6 +116,21 @@ def _rank(args) -> int:
         for line in summary_lines(read_table(ranking), workdir / "results", summary, top=args.top):
             print(line)
     return 0
+
+
+def run_estimate(library: Path, workdir: Path, cores: int, quick: bool) -> str:
+    """One line before the run: rows to compute and the expected wall time (dienes.estimate)."""
+    from . import estimate
+    from .library import read_rows
+    try:
+        smiles = [s for _, s, _ in read_rows(library)]
+    except (OSError, ValueError) as exc:
+        return f"dienes: no time estimate ({exc})"
+    new, ref_done = estimate.rows_to_compute(smiles, workdir)
+    wall = estimate.wall_time_s(new, cores, quick, ref_done)
+    return (f"dienes: {len(smiles)} rows, {new} to compute{'' if ref_done else ' plus the reference set (once)'}; "
+            f"expected {estimate.say(wall)} on {cores} core(s){' (quick screen)' if quick else ''}, for "
+            "catalogues like the demo (a guide within a factor of two)")
 
 
 def condition_overrides(args) -> list[str]:

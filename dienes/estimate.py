@@ -1,0 +1,47 @@
+"""How long a run will take, said before it starts.
+
+Per-row costs in core-seconds, measured on the demo library (docs/validation.md, "Cost of the
+ranking level"): the GFN2-xTB stage (conformers, optimisation, planar s-cis, transition
+structures) and the density-functional single points of one row, plus the reference set's
+one-off cost the first time a working directory sees it. A row already computed in the
+working directory (same SMILES in its results/manifest.json with status ok) costs nothing; the
+estimate assumes catalogues like the demo (size, flexibility), so it is a guide within a factor
+of about two.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+GFN2_ROW_CORE_S = 32.0          # GFN2-xTB stage per library row
+DFT_ROW_CORE_S = 150.0          # density-functional single points per library row (default level)
+REFERENCE_ONCE_CORE_S = 316.0 + 1600.0    # the reference set, GFN2-xTB + density functional, once
+PARALLEL_EFFICIENCY = 0.85      # measured on the demo: core-seconds / (wall x cores)
+
+
+def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool]:
+    """(library rows not yet computed in `workdir`, whether its reference set is computed)."""
+    manifest = Path(workdir) / "results" / "manifest.json"
+    try:
+        done = json.loads(manifest.read_text())
+    except (OSError, ValueError):
+        return len(library_smiles), False
+    seen = {r["smiles"] for r in done.get("records", []) if r.get("status") == "ok"}
+    return sum(1 for s in library_smiles if s not in seen), bool(done.get("reference_records"))
+
+
+def wall_time_s(new_rows: int, cores: int, quick: bool, reference_done: bool) -> float:
+    """Expected wall time (s) of a run computing `new_rows` rows on `cores` cores."""
+    per_row = GFN2_ROW_CORE_S + (0.0 if quick else DFT_ROW_CORE_S)
+    once = 0.0 if reference_done else (316.0 if quick else REFERENCE_ONCE_CORE_S)
+    return (once + new_rows * per_row) / max(int(cores), 1) / PARALLEL_EFFICIENCY
+
+
+def say(seconds: float) -> str:
+    """'about 40 min', 'about 3.5 h', 'under a minute'."""
+    if seconds < 60:
+        return "under a minute"
+    if seconds < 5400:
+        return f"about {max(1, round(seconds / 60))} min"
+    return f"about {seconds / 3600:.1f} h"

@@ -174,7 +174,10 @@ def _look(args) -> int:
     st = settings.structure_settings()
     from .dienophiles import smiles_of
     args.dienophile = smiles_of(args.dienophile) if args.dienophile else None
-    dph_smiles = args.dienophile or config["dienophile"]
+    # one dienophile throughout: the one asked for, else that of the finished run in --workdir
+    # (whose model gives the prediction), else the shipped config's
+    dph_smiles = args.dienophile or _finished_run_dienophile(Path(args.workdir)) or config["dienophile"]
+    args.dienophile = dph_smiles
     problem = check_dienophile(dph_smiles)
     if problem:
         return _fail(f"dienophile {dph_smiles!r}: {problem}")
@@ -224,9 +227,20 @@ def _look(args) -> int:
                                    step_deg=15.0)
             print(f"  relaxed torsion profile of site {best['label']} (0 deg = s-cis):")
             print("\n".join(text_profile(a, e)))
-    if not args.no_ts:
+    if args.no_ts:
+        print("\nno predicted log10 k: --no-ts skips the transition structure the prediction needs")
+    else:
         _look_as_rank(args, dph_smiles)
     return 0
+
+
+def _finished_run_dienophile(workdir: Path) -> str | None:
+    """The dienophile of the finished `dienes rank` in `workdir` (its model.json), or None."""
+    import json
+    try:
+        return json.loads((workdir / "results" / "model.json").read_text())["config"]["dienophile"]
+    except (OSError, ValueError, KeyError, TypeError):
+        return None
 
 
 def _look_as_rank(args, dph_smiles: str) -> None:

@@ -1,4 +1,5 @@
 """What the chemist looks at: report.html, dienes.sdf, the console command (slow)."""
+import json
 import csv
 import io
 import os
@@ -289,3 +290,15 @@ def test_the_report_renders_from_a_plain_install(run_dir, tmp_path):
     assert out.returncode == 0, out.stderr[-3000:]
     page = (tmp_path / "results" / "report.html").read_text()
     assert "Which dienes first" in page and "1,3-butadiene is a carcinogen" in page and "th.sortable" in page
+
+
+@pytest.mark.slow
+def test_look_uses_the_finished_runs_dienophile_throughout(capsys, tmp_path):
+    # a run made with N-phenylmaleimide: look without --dienophile computes with it too (its model
+    # predicts for that dienophile), and says in one line when --no-ts leaves no prediction
+    (tmp_path / "results").mkdir()
+    (tmp_path / "results" / "model.json").write_text(json.dumps({"config": {"dienophile": "O=C1C=CC(=O)N1c1ccccc1"}}))
+    assert cli.main(["look", "C=CC=C", "--no-ts", "--no-profile", "--workdir", str(tmp_path)]) == 0
+    text = capsys.readouterr().out
+    assert "dienophile O=C1C=CC(=O)N1c1ccccc1:" in text
+    assert "no predicted log10 k: --no-ts skips the transition structure" in text

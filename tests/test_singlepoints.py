@@ -228,3 +228,44 @@ def test_the_shipped_level_sizes_cyclopentadienes_advantage_over_butadiene(struc
     assert barriers["C=CC=C"] == pytest.approx(93.3, abs=8.0)
     assert barriers["C1=CCC=C1"] == pytest.approx(75.3, abs=8.0)
     assert barriers["C=CC=C"] - barriers["C1=CCC=C1"] == pytest.approx(18.0, abs=3.0)
+
+
+@pytest.mark.slow
+def test_the_diene_enters_the_free_energy_barrier_as_the_ensemble_of_its_minima(structure_settings, config):
+    # 2-chlorobutadiene: s-trans and a pair of mirror-image gauche conformers (gauche minima of a
+    # 2-substituted butadiene come as enantiomers: common practice). The diene's free energy is
+    # -RT ln sum_i exp(-G_i / RT) over every minimum, each twin counted (statistical mechanics of a
+    # conformer mixture; any text, e.g. McQuarrie, Statistical Mechanics), with G_i its energy at
+    # the level plus its own thermal correction. Computed here by another route (scipy's logsumexp
+    # over the minima as the structure file lists them, twins filled in by hand).
+    from scipy.special import logsumexp
+    from dienes.pipeline import backend_settings, compute_structure
+    from dienes.run import thermal_source
+    from dienes.units import rt_kjmol
+    res = compute_structure("C=CC(Cl)=C", structure_settings)
+    level = GFN2Level(backend_settings(structure_settings))
+    thermal = thermal_source(config)
+    out = refine.price_structure(res, level, thermal)
+    twins = out["mirror_of"]
+    assert len(twins) >= 3 and len(set(twins)) < len(twins)      # a gauche pair found and counted twice
+    rt = rt_kjmol(thermal.temperature_K)
+    geometries = res["geometry"]["low_minima_A"][:len(twins)]
+    e = [level.energy(res["geometry"]["numbers"], g).energy_kJmol for g in geometries]
+    g_corr = [refine.thermal_correction_kJmol(res["geometry"]["numbers"], geometries[twins[k]], thermal)
+              for k in range(len(twins))]
+    g = np.array(e) + np.array(g_corr)
+    hand = -rt * logsumexp(-g / rt)
+    assert out["free_energy_kJmol"] == pytest.approx(hand, abs=0.01)
+    # the mixture lies below its best conformer by at most RT ln(number of minima)
+    assert g.min() - rt * np.log(len(g)) - 1e-6 <= out["free_energy_kJmol"] <= g.min()
+
+
+def test_the_shipped_ranking_rests_on_the_free_energy_barrier(config):
+    # the first ranking level of the shipped config ranks by the free-energy barrier: its feature is
+    # the site's free_energy_barrier_kJmol, not the electronic one (docs/validation.md, the choice)
+    from dienes.ranking import level_features
+    level = config.ranking_levels[0]
+    assert not level.places_atoms and level.barrier == "free_energy"
+    site = {"status": "ok", "electronic_barrier_kJmol": 40.0, "free_energy_barrier_kJmol": 95.0}
+    f = level_features(level, {"status": "ok", "sites": {"1-2-3-4": site}}, "1-2-3-4")
+    assert f[f"{level.name}_barrier_kJmol"] == 95.0 and f[f"{level.name}_electronic_barrier_kJmol"] == 40.0

@@ -214,13 +214,26 @@ def domain(model: Fit, X: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[list
     span = np.where(hi > lo, hi - lo, np.abs(hi) + 1.0)
     reasons = []
     for row, h in zip(X, lev):
-        why = [f"{f} {v:.3g} beyond the reference range {a:.3g} to {b:.3g}"
+        why = [f"{describe(f, v)}, {'below' if v < a else 'above'} every reference diene's ({a:.3g} to {b:.3g})"
                for f, v, a, b, s in zip(model.features, row, lo, hi, span)
                if v < a - RANGE_MARGIN * s or v > b + RANGE_MARGIN * s]
         if h > cut:
-            why.append(f"leverage {h:.2f} > {cut:.2f} (descriptors combined unlike the reference set)")
+            names = " and ".join(describe(f) for f in model.features if not f.startswith("dienophile["))
+            why.append(f"{names} combined unlike any reference diene (leverage {h:.2f} > {cut:.2f})")
         reasons.append(why)
     return lev, np.array([not r for r in reasons]), reasons
+
+
+DESCRIPTOR_WORDS = {"barrier_kJmol": ("barrier", "kJ/mol"), "homo_eV": ("HOMO", "eV"), "lumo_eV": ("LUMO", "eV"),
+                    "scis_penalty_kJmol": ("s-cis penalty", "kJ/mol"), "distortion_kJmol": ("distortion", "kJ/mol"),
+                    "interaction_kJmol": ("interaction", "kJ/mol"),
+                    "reaction_energy_kJmol": ("reaction energy", "kJ/mol")}
+
+
+def describe(feature: str, value: float | None = None) -> str:
+    """A descriptor in a chemist's words: 'barrier 102 kJ/mol', 'HOMO'."""
+    word, unit = DESCRIPTOR_WORDS.get(feature, (feature, ""))
+    return word if value is None else f"{word} {value:.3g}{' ' + unit if unit else ''}"
 
 
 def pairwise_accuracy(y_true, y_pred) -> float:

@@ -650,9 +650,9 @@ def calibration_notes(table: pd.DataFrame, summary: dict, ref_table: pd.DataFram
         for miss in levels.get(str(r["level"]), {}).get("outside_interval", []):
             if miss["class"] == cls and not (hit and _canonical_or_none(miss["smiles"]) == _canonical_or_none(r["smiles"])):
                 way = "above" if miss["log10_k"] > miss["high"] else "below"
-                notes.append(f"reference {miss['name'] or miss['id']} of this class ({cls}) lies {way} its own "
-                             f"leave-one-out interval (measured {miss['log10_k']:.2f}, interval {miss['low']:.2f} to "
-                             f"{miss['high']:.2f})")
+                notes.append(f"{miss['name'] or miss['id']}, a reference diene of this class ({cls}), lies {way} its "
+                             f"own interval (measured {miss['log10_k']:.2f}, interval {miss['low']:.2f} to "
+                             f"{miss['high']:.2f}): this class may be predicted too {'low' if way == 'above' else 'high'}")
         out.at[idx, "calibration_note"] = "; ".join(notes)
     return out
 

@@ -148,6 +148,34 @@ def test_report_table_matches_ranking_csv(run_dir):
         assert float(cells[10][1][0]) == pytest.approx(float(r["gfn2_barrier_kJmol"]), abs=0.06), r["id"]
 
 
+def test_the_try_first_box_names_exactly_the_first_tier(run_dir):
+    # the ids the report's first box names are ranking.csv's tier-1 rows, in rank order (read with
+    # an HTML parser, not by searching the text)
+    from html.parser import HTMLParser
+    page = (run_dir / "results" / "report.html").read_text()
+    named, state = [], {"card": 0, "bold": False}
+
+    class Reader(HTMLParser):
+        def handle_starttag(self, tag, attrs):
+            if tag == "li" and ("class", "tiercard") in attrs:
+                state["card"] = 1
+            elif tag == "b" and state["card"] == 1:
+                state["bold"] = True
+
+        def handle_endtag(self, tag):
+            if tag == "b" and state["bold"]:
+                state["bold"], state["card"] = False, 2
+
+        def handle_data(self, data):
+            if state["bold"]:
+                named.append(data.strip())
+
+    Reader().feed(page)
+    tier1 = sorted((r for r in _ranking(run_dir) if r["tier"] and int(float(r["tier"])) == 1),
+                   key=lambda r: float(r["rank"]))
+    assert tier1 and named == [r["id"] for r in tier1]
+
+
 def test_report_in_a_real_browser(run_dir):
     if not (shutil.which("chromium") and shutil.which("chromedriver")):
         if os.environ.get("CI"):
@@ -171,6 +199,18 @@ def test_report_in_a_real_browser(run_dir):
         assert "with maleic anhydride (O=C1OC(=O)C=C1)" in first["text"]       # named once, with its SMILES
         assert "dienophile is the reference set's own" in first["text"]
         assert "#scope" in first["scope"]
+        # tier 1 as cards with small drawings, and the table's first columns (name included) inside
+        # a 1280 px window without scrolling sideways
+        cards = driver.execute_script(
+            "return Array.from(document.querySelectorAll('.tryfirst .tiercard')).map(c => c.querySelectorAll('svg').length)")
+        tier1 = [r for r in _ranking(run_dir) if r["tier"] and int(float(r["tier"])) == 1]
+        assert len(cards) == len(tier1) and min(cards) == 1
+        assert driver.execute_script("return document.documentElement.scrollWidth <= window.innerWidth + 1")
+        name_right = driver.execute_script(
+            "var n=document.querySelector('#ranking .name'); return n ? n.getBoundingClientRect().right : null")
+        assert name_right is not None and name_right <= 1280
+        assert driver.execute_script("return document.querySelector('details.caution summary').innerText").startswith(
+            "Cautions. Estimates for prioritising experiments, not hazard data.")
         assert driver.execute_script("return document.getElementById('scope') !== null")
         rows = driver.execute_script("return document.querySelectorAll('#ranking tr[data-row]').length")
         assert rows == len(LIBRARY)
@@ -198,12 +238,17 @@ def test_report_in_a_real_browser(run_dir):
         ids = driver.execute_script(
             "return Array.from(document.querySelectorAll('#ranking tbody tr')).map(r => r.cells[3].firstChild.textContent)")
         assert ids == sorted(ids)
-        # the compact view hides the drawings
-        driver.execute_script("var c=document.getElementById('f-compact'); c.click();")
+        # the drawings can be switched off; the secondary columns wait behind "all columns"
+        driver.execute_script("document.getElementById('f-drawings').click();")
         shown = driver.execute_script(
             "return Array.from(document.querySelectorAll('td.depict')).filter(td => td.offsetParent !== null).length")
         assert shown == 0
-        driver.execute_script("document.getElementById('f-compact').click()")
+        driver.execute_script("document.getElementById('f-drawings').click()")
+        hidden = "return Array.from(document.querySelectorAll('td.secondary')).filter(td => td.offsetParent !== null).length"
+        assert driver.execute_script(hidden) == 0
+        driver.execute_script("document.getElementById('f-allcols').click()")
+        assert driver.execute_script(hidden) > 0
+        driver.execute_script("document.getElementById('f-allcols').click()")
         png = driver.get_screenshot_as_png()
     finally:
         driver.quit()

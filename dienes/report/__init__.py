@@ -226,7 +226,7 @@ def table_rows(table: pd.DataFrame, others: list[str]) -> list[dict]:
         out.append({
             "row": int(r["row"]), "rank": str(int(r["rank"])) if ranked else "",
             "tier": "" if pd.isna(r.get("tier", np.nan)) else str(int(r["tier"])),
-            "depiction": depict(smiles, atoms, atoms) if smiles else "",
+            "depiction": depict(smiles, atoms, atoms, width=130, height=95) if smiles else "",
             "id": _text(r["id"]), "name": _text(r.get("name")), "smiles": _text(r["smiles"]),
             "status": _text(r["status"]), "status_help": text()["status"].get(r["status"], ""),
             "domain_key": domain_key, "domain_note": domain_note,
@@ -395,26 +395,31 @@ def reference_caution(reference: pd.DataFrame) -> str:
 
 # ---------------------------------------------------------------- first box
 
-def tier_lines(table: pd.DataFrame, model: dict, tiers: int = 2) -> list[tuple[int, list[str]]]:
-    """[(tier, ['id name (x butadiene)', ...]), ...] for the first `tiers` tiers."""
+def tier_lines(table: pd.DataFrame, model: dict, tiers: int = 2) -> list[tuple[int, list[dict]]]:
+    """[(tier, [{id, name, times, flags, depiction}, ...]), ...] for the first `tiers` tiers; the
+    first tier's entries carry a small drawing."""
     out = []
     if "tier" not in table:
         return out
     ranked = table[table["rank"].notna() & table["tier"].notna()].sort_values("rank")
     for t in sorted(ranked["tier"].unique())[:tiers]:
         rows = ranked[ranked["tier"] == t]
-        names = []
+        entries = []
         for _, r in rows.head(TIER_NAMES_SHOWN).iterrows():
             times = times_text(r.get("times_faster_than_butadiene"))
-            flag = "" if is_true(r["in_domain"]) else ", extrapolation"
-            other = "" if str(r.get("level")) == model.get("ranking_level") else f", at {r.get('level')}"
-            name = f" {r['name']}" if isinstance(r.get("name"), str) and r["name"] else ""
+            flags = [] if is_true(r["in_domain"]) else ["extrapolation"]
+            if str(r.get("level")) != model.get("ranking_level"):
+                flags.append(f"at {r.get('level')}")
+            if r.get("status") == "ts_unverified":
+                flags.append("saddle not verified")
             hl = hours_text(r.get("half_life_h"))
-            names.append(f"{r['id']}{name} ({'x' + times + ' butadiene' if times else 'no butadiene yardstick'}"
-                         f"{', half-life ' + hl if hl else ''}{flag}{other})")
-        if len(rows) > TIER_NAMES_SHOWN:
-            names.append(f"and {len(rows) - TIER_NAMES_SHOWN} more")
-        out.append((int(t), names))
+            smiles = _text(r.get("isomer_smiles")) or _text(r.get("smiles"))
+            entries.append({"id": _text(r["id"]), "name": _text(r.get("name")),
+                            "times": f"x{times} butadiene" if times else "",
+                            "half_life": f"half-life {hl}" if hl else "", "flags": flags,
+                            "depiction": depict(smiles, width=110, height=80) if int(t) == 1 and smiles else ""})
+        more = len(rows) - TIER_NAMES_SHOWN
+        out.append((int(t), entries, max(more, 0)))
     return out
 
 
@@ -422,7 +427,8 @@ def try_first(table: pd.DataFrame, model: dict) -> dict:
     bench = model.get("bench", {})
     width = bench.get("tier_width_log10")
     base = ranking_model(model).get("base_dienophile", "the reference dienophile")
-    return {"tiers": [{"number": t, "names": names} for t, names in tier_lines(table, model)],
+    return {"tiers": [{"number": t, "entries": entries, "more": more}
+                      for t, entries, more in tier_lines(table, model)],
             "dienophile": model.get("run_dienophile", ""),
             "level": f"{model.get('ranking_level')} ({ranking_model(model).get('level', '')})" if ranking_model(model) else "",
             "accuracy": accuracy_text(model), "time": time_text(model),

@@ -15,8 +15,10 @@
   }
   ['f-status','f-class','f-domain'].forEach(function(id){document.getElementById(id).addEventListener('change',apply);});
   document.getElementById('f-text').addEventListener('input',apply);
-  document.getElementById('f-compact').addEventListener('change',function(e){
-    document.body.classList.toggle('compact',e.target.checked);});
+  document.getElementById('f-allcols').addEventListener('change',function(e){
+    document.body.classList.toggle('allcols',e.target.checked);});
+  document.getElementById('f-drawings').addEventListener('change',function(e){
+    document.body.classList.toggle('nodrawings',!e.target.checked);});
   Array.prototype.forEach.call(table.tHead.rows[0].cells,function(th,k){
     if(!th.classList.contains('sortable')){return;}
     th.addEventListener('click',function(){

@@ -92,6 +92,11 @@ def _rank(args) -> int:
         shipped = cfg.load(configfile, fallback=False)
         levels = [shipped.placing.name] if args.quick else list(shipped["ranking"]["levels"])
         overrides.append(f"ranking={{levels: [{', '.join(levels)}], rows: {'all' if args.quick else args.rows}}}")
+    if args.backend:
+        from . import settings as cfg
+        shipped = cfg.load(configfile, fallback=False)
+        placing = shipped.placing
+        overrides.append(f"levels={{{placing.name}: {{program: xtb, backend: {args.backend}}}}}")
     overrides += condition_overrides(args) + (args.set or [])
     print(run_estimate(library, workdir, args.cores, quick=args.quick), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
@@ -345,6 +350,9 @@ def parser() -> argparse.ArgumentParser:
     r.add_argument("--solvent", metavar="NAME",
                    help="implicit solvent around every GFN2-xTB structure, e.g. toluene (default: the config's "
                         "solvent, none); the scale stays the reference kinetics'")
+    r.add_argument("--backend", choices=["xtb-python", "tblite"],
+                   help="GFN2-xTB implementation (the same Hamiltonian; tblite where xtb-python has no wheel, "
+                        "Python 3.12+) (default: the config's, xtb-python, or tblite where it is missing)")
     r.add_argument("--workdir", default=".", help="where results/ and logs/ go (default: the current directory)")
     r.add_argument("--set", action="append", metavar="KEY=VALUE",
                    help="any other config value, e.g. temperature_K=313.15 (repeatable; default: none)")

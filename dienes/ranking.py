@@ -128,7 +128,7 @@ def level_features(level, result: dict | None, label: str) -> dict:
     if site is None:
         if result.get("status") != "ok":
             return say(result.get("status", "missing"), result.get("message", ""))
-        return say("not_priced", "site not computed: its GFN2-xTB barrier lies well above the best site's")
+        return say("not_recomputed", "site not computed: its GFN2-xTB barrier lies well above the best site's")
     if site.get("status") != "ok":
         return say(site.get("status", ""), site.get("message", ""))
     if BARRIER_KEYS[level.barrier] not in site:

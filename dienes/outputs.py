@@ -149,7 +149,10 @@ def accuracy_text(model: dict) -> str:
         return ""
     return (f"On the reference set (leave-one-out) about {bench['pairs_right_of_10']} of 10 pairs of dienes "
             f"come out in the measured order; a predicted rate constant is typically off by a factor of "
-            f"{bench['typical_factor']:g}.")
+            f"{bench['typical_factor']:g}"
+            + (f"; the {round(100 * bench['interval'])} % intervals held for {round(100 * bench['interval_coverage_loo'])} % "
+               "of the reference dienes, each left out in turn." if bench.get("interval_coverage_loo") is not None
+               and bench.get("interval") else "."))
 
 
 def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, top: int = 10) -> list[str]:

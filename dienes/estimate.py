@@ -1,7 +1,7 @@
 """How long a run will take, said before it starts.
 
-Per-row costs in core-seconds, measured on the demo library (docs/validation.md, "Cost of the
-ranking level"): the GFN2-xTB stage (conformers, optimisation, planar s-cis, transition
+Per-row costs in core-seconds, measured on a clean run of the demo library (README, "Throughput":
+`benchmarks/plan.py` on its results): the GFN2-xTB stage (conformers, optimisation, planar s-cis, transition
 structures) and the density-functional single points of one row, plus the reference set's
 one-off cost the first time a working directory sees it. A row already computed in the
 working directory (same SMILES in its results/manifest.json with status ok) costs nothing; the
@@ -14,10 +14,11 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-GFN2_ROW_CORE_S = 32.0          # GFN2-xTB stage per library row
-DFT_ROW_CORE_S = 150.0          # density-functional single points per library row (default level)
-REFERENCE_ONCE_CORE_S = 316.0 + 1600.0    # the reference set, GFN2-xTB + density functional, once
-PARALLEL_EFFICIENCY = 0.85      # measured on the demo: core-seconds / (wall x cores)
+GFN2_ROW_CORE_S = 23.0          # GFN2-xTB stage per library row
+DFT_ROW_CORE_S = 88.0           # density-functional single points per library row (default level)
+GFN2_REFERENCE_ONCE_CORE_S = 223.0      # the reference set at GFN2-xTB, once per working directory
+REFERENCE_ONCE_CORE_S = 223.0 + 890.0   # the reference set, GFN2-xTB + density functional, once
+PARALLEL_EFFICIENCY = 0.96      # measured on the demo: core-seconds / (wall x cores)
 
 
 def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool]:
@@ -34,7 +35,7 @@ def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool
 def wall_time_s(new_rows: int, cores: int, quick: bool, reference_done: bool) -> float:
     """Expected wall time (s) of a run computing `new_rows` rows on `cores` cores."""
     per_row = GFN2_ROW_CORE_S + (0.0 if quick else DFT_ROW_CORE_S)
-    once = 0.0 if reference_done else (316.0 if quick else REFERENCE_ONCE_CORE_S)
+    once = 0.0 if reference_done else (GFN2_REFERENCE_ONCE_CORE_S if quick else REFERENCE_ONCE_CORE_S)
     return (once + new_rows * per_row) / max(int(cores), 1) / PARALLEL_EFFICIENCY
 
 

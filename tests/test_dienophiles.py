@@ -50,18 +50,18 @@ def test_the_command_line_names_conditions_and_dienophiles(config):
 
 def test_the_run_time_is_estimated_before_the_run(tmp_path):
     # 50 new rows on 2 cores at the default level: (reference once + 50 x per-row core-s) / 2 /
-    # efficiency, the demo's own measured costs (docs/validation.md); rows already computed in the
+    # efficiency, the demo's own measured costs (README, Throughput); rows already computed in the
     # working directory cost nothing, and the quick screen skips the density-functional part
     import json
     from dienes import cli, estimate
     lib = tmp_path / "lib.csv"
     lib.write_text("id,smiles\n" + "".join(f"r{i},C=CC=C{'C' * i}\n" for i in range(50)))
     line = cli.run_estimate(lib, tmp_path, 2, quick=False)
-    expected = (estimate.REFERENCE_ONCE_CORE_S + 50 * (estimate.GFN2_ROW_CORE_S + estimate.DFT_ROW_CORE_S)) / 2 / 0.85
+    expected = (estimate.REFERENCE_ONCE_CORE_S + 50 * (estimate.GFN2_ROW_CORE_S + estimate.DFT_ROW_CORE_S)) / 2 / estimate.PARALLEL_EFFICIENCY
     assert "50 rows, 50 to compute plus the reference set" in line and estimate.say(expected) in line
     (tmp_path / "results").mkdir()
     (tmp_path / "results" / "manifest.json").write_text(json.dumps({
         "records": [{"smiles": f"C=CC=C{'C' * i}", "status": "ok"} for i in range(40)], "reference_records": [{}]}))
     again = cli.run_estimate(lib, tmp_path, 2, quick=True)
     assert "50 rows, 10 to compute;" in again and "quick screen" in again
-    assert estimate.say(10 * estimate.GFN2_ROW_CORE_S / 2 / 0.85) in again
+    assert estimate.say(10 * estimate.GFN2_ROW_CORE_S / 2 / estimate.PARALLEL_EFFICIENCY) in again

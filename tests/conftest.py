@@ -15,6 +15,13 @@ def config():
 
 
 @pytest.fixture(scope="session")
+def shipped():
+    """The shipped config as written (xtb-python), without the fallback a Python lacking
+    xtb-python applies: for checks of what the shipped settings are, on any Python."""
+    return cfg.load(os.path.join(REPO, "config", "config.yaml"), fallback=False)
+
+
+@pytest.fixture(scope="session")
 def structure_settings(config):
     return config.structure_settings()
 

@@ -338,24 +338,31 @@ def smd_solvents() -> list[str]:
     return sorted(smd.solvent_db)
 
 
+def _rks(mol, settings: DFTSettings, xc: str, dispersion: bool = True):
+    """A closed-shell Kohn-Sham object with the level's functional, density fitting and dispersion."""
+    from pyscf import dft
+    mf = dft.RKS(mol)
+    mf.xc = xc
+    if settings.density_fit:
+        mf = mf.density_fit()
+    if settings.dispersion and dispersion:
+        mf.disp = settings.dispersion
+    return mf
+
+
 def dft_energy(numbers, positions_A, settings: DFTSettings, *, ghost=(), threads: int | None = None,
                charge: int = 0) -> LevelEnergy:
     """Closed-shell Kohn-Sham single point. Atoms whose indices are in `ghost` carry
     basis functions only (counterpoise). The SCF is retried with second-order
     convergence when the plain iterations fail; `converged` tells whether either worked."""
     import time as _time
-    from pyscf import dft, lib
+    from pyscf import lib
     if threads:
         lib.num_threads(int(threads))
     t0 = _time.perf_counter()
     mol = _pyscf_mol(numbers, positions_A, settings.basis, ghost, charge)
     xc, c_os, c_ss = second_order_parts(settings.method)
-    mf = dft.RKS(mol)
-    mf.xc = xc
-    if settings.density_fit:
-        mf = mf.density_fit()
-    if settings.dispersion and not ghost:
-        mf.disp = settings.dispersion
+    mf = _rks(mol, settings, xc, dispersion=not ghost)
     if settings.solvent:
         mf = mf.SMD()
         mf.with_solvent.solvent = settings.solvent
@@ -381,7 +388,7 @@ def dft_energy_forces(numbers, settings: DFTSettings, threads: int | None = None
     analytic gradients (PySCF), for the optimisers of dienes.optimize and dienes.saddle. The SCF
     restarts from the previous step's density. Methods with a second-order term have no
     gradient here."""
-    from pyscf import dft, lib
+    from pyscf import lib
     xc, c_os, c_ss = second_order_parts(settings.method)
     if c_os or c_ss or settings.solvent:
         raise ValueError(f"no analytic gradient here for {settings.label()}")
@@ -391,12 +398,7 @@ def dft_energy_forces(numbers, settings: DFTSettings, threads: int | None = None
 
     def energy_forces(positions_A):
         mol = _pyscf_mol(numbers, positions_A, settings.basis)
-        mf = dft.RKS(mol)
-        mf.xc = xc
-        if settings.density_fit:
-            mf = mf.density_fit()
-        if settings.dispersion:
-            mf.disp = settings.dispersion
+        mf = _rks(mol, settings, xc)
         mf.grids.level = settings.grid_level
         mf.conv_tol = min(settings.conv_tol_hartree, 1e-8)
         e_h = mf.kernel(dm0=state["dm"])

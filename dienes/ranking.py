@@ -580,10 +580,6 @@ def _term_name(feature: str) -> str:
     return f"term_{feature}_log10k"
 
 
-TERM_WORDS = {"term_barrier_log10k": "barrier", "term_homo_log10k": "HOMO", "term_lumo_log10k": "LUMO",
-              "term_dienophile_log10k": "dienophile", "term_scis_penalty_log10k": "s-cis penalty"}
-
-
 def model_terms(table: pd.DataFrame, summary: dict) -> pd.DataFrame:
     """Each model term's share of a ranked row's log10_k_pred, at the row's level:
     baseline_log10k (the prediction for the average reference diene) plus one term_<x>_log10k
@@ -592,6 +588,7 @@ def model_terms(table: pd.DataFrame, summary: dict) -> pd.DataFrame:
     out = pd.DataFrame(index=table.index)
     out["baseline_log10k"] = np.nan
     texts = pd.Series("", index=table.index, dtype=object)
+    words = {}                          # term column -> the descriptor in words
     for name, model in summary.get("levels", {}).items():
         if "coefficients" not in model:
             continue
@@ -608,12 +605,13 @@ def model_terms(table: pd.DataFrame, summary: dict) -> pd.DataFrame:
             else:
                 x = table[f].astype(float)
             term = _term_name(f)
+            words[term] = "dienophile" if f.startswith("dienophile[") else mdl.describe(f)
             if term not in out:
                 out[term] = np.nan
             out.loc[mask, term] = out.loc[mask, term].fillna(0.0) + c * (x[mask] - means[f])
     terms = [c for c in out.columns if c.startswith("term_")]
     for idx in out.index[out["baseline_log10k"].notna()]:
-        parts = [f"{TERM_WORDS.get(t, t[5:-7])} {out.at[idx, t]:+.2f}" for t in terms if pd.notna(out.at[idx, t])]
+        parts = [f"{words[t]} {out.at[idx, t]:+.2f}" for t in terms if pd.notna(out.at[idx, t])]
         texts[idx] = ", ".join(parts) + f" (log10 units against the average reference diene, {out.at[idx, 'baseline_log10k']:+.2f})"
     out["model_terms"] = texts
     return out

@@ -98,7 +98,11 @@ def _rank(args) -> int:
         placing = shipped.placing
         overrides.append(f"levels={{{placing.name}: {{program: xtb, backend: {args.backend}}}}}")
     overrides += condition_overrides(args) + (args.set or [])
-    print(run_estimate(library, workdir, args.cores, quick=args.quick), file=sys.stderr)
+    rows = args.rows
+    if rows is None and not args.quick:
+        from . import settings as cfg
+        rows = cfg.load(configfile, fallback=False).rows
+    print(run_estimate(library, workdir, args.cores, quick=args.quick, rows=rows), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
            "--directory", str(workdir), "--cores", str(args.cores), "--configfile", str(configfile),
@@ -123,7 +127,7 @@ def _rank(args) -> int:
     return 0
 
 
-def run_estimate(library: Path, workdir: Path, cores: int, quick: bool) -> str:
+def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="all") -> str:
     """One line before the run: rows to compute and the expected wall time (dienes.estimate)."""
     from . import estimate
     from .library import read_rows
@@ -132,10 +136,11 @@ def run_estimate(library: Path, workdir: Path, cores: int, quick: bool) -> str:
     except (OSError, ValueError) as exc:
         return f"dienes: no time estimate ({exc})"
     new, ref_done = estimate.rows_to_compute(smiles, workdir)
-    wall = estimate.wall_time_s(new, cores, quick, ref_done)
-    return (f"dienes: {len(smiles)} rows, {new} to compute{'' if ref_done else ' plus the reference set (once)'}; "
-            f"expected {estimate.say(wall)} on {cores} core(s){' (quick screen)' if quick else ''}, for "
-            "catalogues like the demo (a guide within a factor of two)")
+    share, how = estimate.dft_share(rows, len(smiles))
+    wall = estimate.wall_time_s(new, cores, quick, ref_done, share)
+    return (f"dienes: {len(smiles)} rows, {new} to compute{'' if ref_done else ' plus the reference set (once)'}"
+            f"{'' if quick else how}; expected {estimate.say(wall)} on {cores} core(s)"
+            f"{' (quick screen)' if quick else ''}, for catalogues like the demo (a guide within a factor of two)")
 
 
 def condition_overrides(args) -> list[str]:
@@ -149,9 +154,9 @@ def condition_overrides(args) -> list[str]:
 
 
 def _rows(text: str) -> str:
-    if text == "all" or (text.isdigit() and int(text) > 0):
+    if text in ("all", "contenders", "auto") or (text.isdigit() and int(text) > 0):
         return text
-    raise argparse.ArgumentTypeError("give all or a positive number of rows")
+    raise argparse.ArgumentTypeError("give all, contenders, auto or a positive number of rows")
 
 
 def text_profile(angles, energies) -> list[str]:
@@ -340,10 +345,13 @@ def parser() -> argparse.ArgumentParser:
     how.add_argument("--quick", action="store_true",
                      help="a quick GFN2-xTB screen: rank without the density-functional single points (about a "
                           "sixth of the time; GFN2-xTB misorders the top, the output says so) (default: off)")
-    how.add_argument("--rows", type=_rows, metavar="all|N",
-                     help="which dienes are recomputed at the density-functional level: all, or only the N best by "
-                          "GFN2-xTB (risky: GFN2-xTB misorders the top); about a minute per diene on one core "
-                          "(default: the config's ranking.rows, all)")
+    how.add_argument("--rows", type=_rows, metavar="all|contenders|auto|N",
+                     help="which dienes are recomputed at the density-functional level (about a minute per diene on "
+                          "one core): all; contenders (a sample spanning the library, then every diene whose "
+                          "corrected GFN2-xTB estimate could reach the top; the rest ranked on that estimate, "
+                          "with its error in their intervals); auto (all up to 150 dienes, contenders above); or "
+                          "the N best by GFN2-xTB (risky: GFN2-xTB misorders the top) (default: the config's "
+                          "ranking.rows, auto)")
     r.add_argument("--temperature", type=float, metavar="K",
                    help="reaction temperature in kelvin: conformer weights and the free-energy barriers "
                         "(default: the config's temperature_K, 298.15)")

@@ -21,6 +21,10 @@ BASE_TERM = "gfn2_barrier_kJmol"
 CANDIDATE_TERMS = ("contact_dispersion_kJmol", "distortion_kJmol", "dienophile_distortion_kJmol",
                    "interaction_kJmol", "homo_eV", "lumo_eV", "scis_penalty_kJmol", "reaction_energy_kJmol",
                    "aromatic", "ring")
+# the terms known for every row before any single point (the contact dispersion is measured when
+# a pair is recomputed, so a corrected level cannot use it for the rows it stands in for)
+ROW_TERMS = tuple(t for t in CANDIDATE_TERMS if t != "contact_dispersion_kJmol")
+MIN_ROWS = 10              # a corrected level is fitted on at least this many recomputed sites
 RIDGE_ALPHA = 1.0
 MIN_GAIN = 0.03            # a term joins only if it lowers the leave-one-out MAE by 3 % or more
 
@@ -93,19 +97,29 @@ def _loo(X, y) -> np.ndarray:
     return y - out
 
 
-def usable_rows(table, target: str, candidates=CANDIDATE_TERMS):
+def usable_rows(table, target: str, candidates=CANDIDATE_TERMS, base: str = BASE_TERM):
     """The rows where the target, the GFN2-xTB barrier and every candidate term are known."""
     numeric = [c for c in candidates if c not in ("ring", "aromatic") and c in table]
-    return table[table[target].notna() & table[BASE_TERM].notna() & table[numeric].notna().all(axis=1)]
+    return table[table[target].notna() & table[base].notna() & table[numeric].notna().all(axis=1)]
 
 
-def fit_correction(table, target: str, candidates=CANDIDATE_TERMS, max_terms: int = 4) -> Correction:
+def predictable(table, terms) -> np.ndarray:
+    """Rows of a sites table where every term of a correction is known."""
+    numeric = [t for t in terms if t not in ("ring", "aromatic")]
+    ok = np.ones(len(table), dtype=bool)
+    for t in numeric:
+        ok &= table[t].notna().to_numpy() if t in table else False
+    return ok
+
+
+def fit_correction(table, target: str, candidates=CANDIDATE_TERMS, max_terms: int = 4,
+                   base: str = BASE_TERM) -> Correction:
     """Forward selection of GFN2-xTB terms for `target` (e.g. 'dft_barrier_kJmol') over the rows
-    where the target and every candidate are known."""
+    where the target and every candidate are known; `base` (the GFN2-xTB barrier) is always in."""
     usable = [c for c in candidates if c in ("ring", "aromatic") or c in table]
-    rows = usable_rows(table, target, candidates)
+    rows = usable_rows(table, target, usable, base)
     y = rows[target].to_numpy(float)
-    chosen = [BASE_TERM]
+    chosen = [base]
     best = float(np.mean(np.abs(_loo(design(rows, chosen), y))))
     trail = [{"terms": list(chosen), "loo_mae_kJmol": best}]
     while len(chosen) < max_terms + 1:

@@ -19,6 +19,8 @@ DFT_ROW_CORE_S = 88.0           # density-functional single points per library r
 GFN2_REFERENCE_ONCE_CORE_S = 223.0      # the reference set at GFN2-xTB, once per working directory
 REFERENCE_ONCE_CORE_S = 223.0 + 890.0   # the reference set, GFN2-xTB + density functional, once
 PARALLEL_EFFICIENCY = 0.96      # measured on the demo: core-seconds / (wall x cores)
+CONTENDERS_SHARE = 0.5          # share of the single-point cost a contenders run spends (benchmarks/contenders.py)
+AUTO_FROM_ROWS = 150            # config.yaml's ranking.contenders.from_rows
 
 
 def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool]:
@@ -32,9 +34,25 @@ def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool
     return sum(1 for s in library_smiles if s not in seen), bool(done.get("reference_records"))
 
 
-def wall_time_s(new_rows: int, cores: int, quick: bool, reference_done: bool) -> float:
-    """Expected wall time (s) of a run computing `new_rows` rows on `cores` cores."""
-    per_row = GFN2_ROW_CORE_S + (0.0 if quick else DFT_ROW_CORE_S)
+def dft_share(rows, n_rows: int) -> tuple[float, str]:
+    """(share of the rows recomputed at the density-functional level, how it is said) for
+    ranking.rows `rows` on a library of n_rows."""
+    rows = str(rows)
+    if rows == "auto":
+        rows = "contenders" if n_rows > AUTO_FROM_ROWS else "all"
+    if rows.isdigit():
+        share = min(1.0, int(rows) / max(n_rows, 1))
+        return share, f", the {min(int(rows), n_rows)} best by GFN2-xTB recomputed at the density-functional level"
+    if rows == "contenders":
+        return CONTENDERS_SHARE, (f", about {CONTENDERS_SHARE:.0%} of the density-functional work (only the "
+                                  "dienes that could reach the top; measured on a 166-diene library)")
+    return 1.0, ""
+
+
+def wall_time_s(new_rows: int, cores: int, quick: bool, reference_done: bool, dft_share: float = 1.0) -> float:
+    """Expected wall time (s) of a run computing `new_rows` rows on `cores` cores, dft_share of them
+    at the density-functional level."""
+    per_row = GFN2_ROW_CORE_S + (0.0 if quick else DFT_ROW_CORE_S * dft_share)
     once = 0.0 if reference_done else (GFN2_REFERENCE_ONCE_CORE_S if quick else REFERENCE_ONCE_CORE_S)
     return (once + new_rows * per_row) / max(int(cores), 1) / PARALLEL_EFFICIENCY
 

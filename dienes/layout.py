@@ -8,7 +8,8 @@ the one way every file is written (atomically: a killed job never leaves half a 
     results/levels/<level>-<hash>/...             single points at a named level:
         structures/<key>.json, dienophiles/<dhash>.json, pairs/<key>__<thash>.json
     results/batches/<stage>/<bid>.json            what one batch job did
-    results/shortlist.json                        ranking.rows N: the pairs the first level computes
+    results/rounds/round<r>.json                  ranking.rows N or contenders: the pairs the first
+                                                  level computes in round r, and its jobs
     results/profiles/<key>__<site>.json           torsion profiles the report draws
     results/ranking.csv, sites.csv, reference_fit.csv, model.json, report.html, dienes.sdf
 """
@@ -45,9 +46,8 @@ class Layout:
     def manifest(self) -> Path:
         return self.root / "manifest.json"
 
-    @property
-    def shortlist(self) -> Path:
-        return self.root / "shortlist.json"
+    def level_round(self, r="{round}") -> Path:
+        return self.root / "rounds" / f"round{r}.json"
 
     def structure(self, key="{key}") -> Path:
         return self.root / "structures" / f"{key}.json"

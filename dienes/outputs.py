@@ -155,6 +155,31 @@ def accuracy_text(model: dict) -> str:
                and bench.get("interval") else "."))
 
 
+def computed_text(summary: dict) -> str:
+    """One line on which rows the ranking level computed and what that risked, or '' where it
+    computed every row."""
+    c = summary.get("computed_rows", {})
+    if not c or c.get("rows") == "all":
+        return ""
+    corrected = {k: v for k, v in c.get("ranked_by_level", {}).items() if k != c["level"]}
+    corr = next((m.get("correction") for m in summary.get("levels", {}).values() if m.get("correction")), None)
+    text = (f"{c['level']} computed {c.get('pairs_computed', 0)} of {c.get('pairs_in_run', 0)} diene-dienophile pairs "
+            f"in {c.get('rounds', 0)} round(s) ({c.get('ended', '')}); ranked there: "
+            f"{c.get('ranked_by_level', {}).get(c['level'], 0)} rows"
+            + "".join(f", on {k}: {v}" for k, v in corrected.items()))
+    if corr:
+        text += (f"; the correction's error: mean {corr['loo_mae_kJmol']:.1f} kJ/mol, "
+                 f"{interval_label(summary.get('interval', 0.9))} within {corr['half_width_kJmol']:.0f} kJ/mol "
+                 "(in every such row's interval)")
+    if c.get("cut_log10_k") is not None:
+        near = [n["id"] for n in c.get("nearest_cut", []) if not n.get("contender")][:3]
+        text += (f"; a row had to be able to reach log10 k {c['cut_log10_k']:+.2f} (place {c['cut_place']})"
+                 + (f"; nearest below that, not computed: {', '.join(near)}" if near else ""))
+    if c.get("note"):
+        text += f"; {c['note']}"
+    return text
+
+
 def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, top: int = 10) -> list[str]:
     summary = summary or {}
     counts = Counter(ranking["status"])
@@ -198,7 +223,9 @@ def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, t
         if n_out:
             lines.append(f"{n_out} ranked row(s) are extrapolations: see in_domain and domain_note in ranking.csv")
         n_other = int((ranking.loc[ranking["rank"].notna(), "level"].astype(str) != main_level).sum())
-        if n_other:
+        if summary and computed_text(summary):
+            lines.append(computed_text(summary))
+        elif n_other:
             lines.append(f"{n_other} ranked row(s) are ranked at a later level of ranking.levels (their {main_level} "
                          "value failed or was not computed): see level and message in ranking.csv")
     out = Path(out_dir)

@@ -141,10 +141,54 @@ def level_features(level, result: dict | None, label: str) -> dict:
 
 
 def _levels_computed(settings) -> list:
-    """The ranking levels, and the one that places the atoms (its barrier picks a reference
-    diene's site) where ranking.levels leaves it out."""
-    levels = list(settings.ranking_levels)
+    """The ranking levels that compute (a corrected level is added later, see `corrected_level`),
+    and the one that places the atoms (its barrier picks a reference diene's site) where
+    ranking.levels leaves it out."""
+    levels = [lv for lv in settings.ranking_levels if not lv.corrects]
     return levels + ([settings.placing] if not any(lv.places_atoms for lv in levels) else [])
+
+
+def corrected_level(sites: pd.DataFrame, ref_table: pd.DataFrame, level, settings):
+    """A corrected level's barriers: its target level's barrier estimated from GFN2-xTB terms
+    (dienes.correction), fitted on every site the target computed (library rows and reference
+    dienes, each site once). Adds <level>_barrier_kJmol, _status, _message to both tables.
+    Returns (sites, ref_table, correction summary or {'error': why})."""
+    from . import correction as cr
+    target, base = col(level.target, "barrier_kJmol"), col(settings.placing, "barrier_kJmol")
+    frames = [t[t.get("site_status", pd.Series(dtype=object)) == "ok"] for t in (sites, ref_table)
+              if len(t) and target in t and "transition_key" in t]
+    train = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+    if len(train):
+        train = train[train[target].notna() & train[base].notna()].drop_duplicates(["transition_key", "site"])
+    n = len(cr.usable_rows(train, target, cr.ROW_TERMS, base)) if len(train) else 0
+    out = []
+    if n < int(level.option("min_sites", cr.MIN_ROWS)):
+        info = {"error": f"{n} sites computed at {level.target.name} with every GFN2-xTB term; the correction "
+                         f"needs at least {level.option('min_sites', cr.MIN_ROWS)}"}
+        corr = None
+    else:
+        corr = cr.fit_correction(train, target, cr.ROW_TERMS, base=base)
+        hw = corr.half_width_kJmol(float(settings["model"]["interval"]))
+        info = {"target": level.target.name, "terms": corr.terms, "coefficients": dict(zip(corr.terms, corr.coef)),
+                "intercept": corr.intercept, "n_sites": corr.n, "loo_mae_kJmol": round(corr.loo_mae_kJmol, 2),
+                "loo_spearman": round(corr.loo_spearman, 3), "half_width_kJmol": round(hw, 2),
+                "bound_kJmol": round(corr.half_width_kJmol(float(settings["ranking"]["contenders"]["coverage"])), 2),
+                "selection": corr.trail}
+    for table in (sites, ref_table):
+        t = table.copy()
+        for c in ("barrier_kJmol", "electronic_barrier_kJmol"):
+            t[col(level, c)] = np.nan
+        t[col(level, "status")], t[col(level, "message")] = "not_fitted", info.get("error", "")
+        if corr is not None and len(t):
+            ok = (t.get("site_status", pd.Series("", index=t.index)) == "ok").to_numpy() \
+                & t[base].notna().to_numpy() & cr.predictable(t, corr.terms)
+            t.loc[ok, col(level, "barrier_kJmol")] = corr.predict(t.loc[ok])
+            t.loc[ok, col(level, "status")] = "ok"
+            t.loc[ok, col(level, "message")] = ""
+            t.loc[~ok, col(level, "status")] = "no_terms"
+            t.loc[~ok, col(level, "message")] = "a GFN2-xTB term of the correction is missing"
+        out.append(t)
+    return out[0], out[1], info
 
 
 def record_sites(rec: dict, computed: Computed, settings) -> list[dict]:
@@ -348,6 +392,8 @@ def predict_sites(site_rows: pd.DataFrame, fit, settings, summary: dict, level) 
     for name, smiles in summary["dienophile_terms"].items():
         view[name] = 1.0 if canonical(smiles) == run else 0.0
     c_pred, c_lo, c_hi, c_lev, c_dom, c_note = (col(level, c) for c in PREDICTION_COLUMNS)
+    # a corrected level's barrier carries the correction's own error: both halves add in quadrature
+    extra = float(summary.get("correction", {}).get("half_width_log10", 0.0))
     for c in (c_pred, c_lo, c_hi, c_lev):
         out[c] = np.nan
     out[c_dom] = pd.Series([None] * len(out), dtype=object, index=out.index)
@@ -361,6 +407,9 @@ def predict_sites(site_rows: pd.DataFrame, fit, settings, summary: dict, level) 
     if ok.any():
         X = view.loc[ok, fit.features].to_numpy(float)
         pred, lo, hi = mdl.predict(fit, X, settings["model"]["interval"])
+        if extra:
+            half = np.sqrt(((hi - lo) / 2.0) ** 2 + extra ** 2)
+            lo, hi = pred - half, pred + half
         lev, _, reasons = mdl.domain(fit, X)
         out.loc[ok, c_pred] = pred
         out.loc[ok, c_lo] = lo
@@ -390,7 +439,10 @@ def _why_not(site: pd.Series, level, models: dict, settings) -> str:
     if status == "not_computed":
         levels = settings.ranking_levels
         nxt = levels[levels.index(level) + 1].name if level in levels[:-1] else "the next level"
-        return f"not computed at {level.name}: not among the {settings.rows} best rows at {nxt} (ranking.rows)"
+        if isinstance(settings.rows, int):
+            return f"not computed at {level.name}: not among the {settings.rows} best rows at {nxt} (ranking.rows)"
+        return (f"not computed at {level.name}: its estimate could not reach the top "
+                f"{settings['ranking']['contenders']['top']} or tier 1 (ranking.rows {settings.rows})")
     if isinstance(status, str) and status and status != "ok":
         return f"{level.name} gave no barrier ({status}: {message})"
     return f"{level.name} gave no prediction (a model descriptor is missing)"
@@ -405,18 +457,20 @@ def choose_level(sites: pd.DataFrame, settings, models: dict) -> pd.DataFrame:
     levels = settings.ranking_levels
     chosen = pd.Series("", index=out.index, dtype=object)
     for level in levels:
-        chosen[(chosen == "") & out[col(level, "log10_k_pred")].notna()] = level.name
+        if col(level, "log10_k_pred") in out:       # a level whose model could not be fitted has none
+            chosen[(chosen == "") & out[col(level, "log10_k_pred")].notna()] = level.name
     for name in ROW_LEVEL_COLUMNS:
         values = pd.Series(np.nan, index=out.index, dtype=object)
         for level in levels:
             mask = chosen == level.name
-            values[mask] = out.loc[mask, col(level, name)]
+            if mask.any():
+                values[mask] = out.loc[mask, col(level, name)]
         out[name] = values.infer_objects() if name in ("in_domain", "domain_note") else values.astype(float)
     by_name = {lv.name: lv for lv in levels}
     out["level"] = chosen.where(chosen != "", None)
     out["barrier_kind"] = [by_name[c].barrier if c else None for c in chosen]
     out["level_method"] = [f"{by_name[c].label()}, {by_name[c].barrier.replace('_', ' ')} barrier"
-                           + ("" if by_name[c].places_atoms else " on GFN2-xTB structures") if c else None
+                           + (" on GFN2-xTB structures" if by_name[c].program == "pyscf" else "") if c else None
                            for c in chosen]
     notes = []
     for idx, c in chosen.items():

@@ -2,7 +2,7 @@
 
 prepare (read the library once, record the settings, list the work) -> structures
 (batches of conformer searches) -> dienophiles -> transition structures (batches)
--> [shortlist] -> single points at each priced level (dienophiles, batches of pairs)
+-> [rounds of the first level] -> single points at each priced level (dienophiles, batches of pairs)
 -> rank -> torsion profiles -> report.
 
 The settings are validated once, at the edge (Snakefile, command line, Python API),
@@ -143,14 +143,21 @@ def prepare(settings, manifest_path, results="results") -> dict:
                 "records": records, "reference_records": reference,
                 "structures": dict(sorted(structures.items())), "dienophiles": dienophiles,
                 "transitions": dict(sorted(transitions.items())),
-                "levels": {lv.name: {"key": lv.key(), "label": lv.label(), "rows": settings.rows_for(lv)}
+                "levels": {lv.name: {"key": lv.key(), "label": lv.label(), "rows": _rows_mode(settings, lv, records)}
                            for lv in settings.priced_levels},
                 "batches": {"structures": s_batches, "transition": t_batches, "level": {}}}
     for level in settings.priced_levels:
-        if settings.rows_for(level) == "all":
+        if manifest["levels"][level.name]["rows"] == "all":
             manifest["batches"]["level"] |= level_batches(manifest, level, list(transitions), layout)
     write_json(manifest, manifest_path)
     return manifest
+
+
+def _rows_mode(settings: cfg.Settings, level: cfg.Level, records: list[dict]):
+    """What `level` computes: 'all', 'contenders' or N (ranking.rows auto decided by the library's size)."""
+    if settings.rows_for(level) == "all":
+        return "all"
+    return settings.rows_mode(len(records))
 
 
 def _pending(manifest: dict) -> set[str]:
@@ -283,9 +290,7 @@ def level_pairs(manifest: dict, settings: cfg.Settings, level: cfg.Level, rankin
         return list(manifest["transitions"])
     top = ranking[ranking["status"].isin(("ok", "ts_unverified")) & ranking["rank"].notna()]
     stems = list(top.sort_values("rank").head(int(rows))["transition_key"].astype(str))
-    for rec in manifest["reference_records"]:
-        if rec["status"] == "ok":
-            stems += [transition_stem(i["key"], rec["dienophile"]["thash"]) for i in rec["isomers"]]
+    stems += _reference_stems(manifest)
     return list(dict.fromkeys(s for s in stems if s in manifest["transitions"]))
 
 
@@ -304,20 +309,82 @@ def level_batches(manifest: dict, level: cfg.Level, stems: list[str], layout: La
     return out
 
 
-def shortlist(manifest_path, out_path, results="results") -> dict:
-    """ranking.rows N: rank at the levels after the first, then list the pairs the first
-    level computes (the N best rows and the reference) and the jobs for those not done yet."""
+def first_level_rows(manifest: dict, settings: cfg.Settings):
+    """What the first ranking level computes in this run, as prepare decided it: 'all',
+    'contenders' or N."""
+    first = settings.ranking_levels[0]
+    return manifest.get("levels", {}).get(first.name, {}).get("rows", settings.rows_for(first))
+
+
+def round_chain(layout: Layout) -> list[dict]:
+    """The rounds of the first level written so far, in order, up to the one that ended them."""
+    out = []
+    while layout.level_round(len(out)).is_file():
+        out.append(read_json(layout.level_round(len(out))))
+        if out[-1].get("done"):
+            break
+    return out
+
+
+def level_round(manifest_path, r: int, out_path, results="results") -> dict:
+    """Round r of the first ranking level where it does not compute every row (dienes.contenders):
+    the pairs it adds (round 0: the reference set and, for N, the N best rows at the next levels,
+    for contenders a first sample spanning the library; later rounds: the contenders), the jobs
+    for those not computed yet, and whether the rounds end here."""
+    from . import contenders as ct
+    from .ranking import col as ranking_col
     layout = Layout(results)
     manifest = read_json(manifest_path)
     settings = settings_of(manifest)
-    first, rest = settings.ranking_levels[0], [lv.name for lv in settings.ranking_levels[1:]]
-    screen = settings.replace(ranking={"levels": rest, "rows": "all"})
-    table = rank_tables(manifest, load_computed(manifest, screen, layout, out_path), screen)[0]
-    stems = level_pairs(manifest, settings, first, table)
-    out = {"level": first.name, "lkey": first.key(), "rows": settings.rows, "pairs": stems,
-           "batches": level_batches(manifest | {"batches": {"transition": {}}}, first, stems, layout)}
+    first = settings.ranking_levels[0]
+    mode = first_level_rows(manifest, settings)
+    opts = settings["ranking"]["contenders"]
+    earlier = [read_json(layout.level_round(i)) for i in range(r)]
+    computed_so_far = list(dict.fromkeys(s for e in earlier for s in e["pairs"]))
+    library = [s for s in manifest["transitions"] if s not in set(_reference_stems(manifest))]
+    info: dict = {}
+    if r == 0:
+        rest = [lv.name for lv in settings.ranking_levels[1:] if not lv.corrects]
+        screen = settings.replace(ranking=dict(settings["ranking"]) | {"levels": rest, "rows": "all"})
+        table, sites = rank_tables(manifest, load_computed(manifest, screen, layout, pairs=[]), screen)[:2]
+        if mode == "contenders":
+            pairs = ct.pair_table(sites, ranking_col(settings.placing, "barrier_kJmol"))
+            pairs = pairs[pairs["transition_key"].isin(library)].reset_index(drop=True)
+            n = ct.first_count(len(pairs), opts["first_share"], opts["min_first"])
+            stems = _reference_stems(manifest) + ct.first_sample(pairs, n, ranking_col(settings.placing,
+                                                                                      "barrier_kJmol"))
+            info = {"first_sample": n, "library_pairs": len(pairs)}
+        else:
+            stems = level_pairs(manifest, settings, first, table)
+        done = mode != "contenders"
+    else:
+        corrected = next(lv for lv in settings.ranking_levels if lv.corrects and lv.target.name == first.name)
+        table, sites, summary, _ = rank_tables(manifest, load_computed(manifest, settings, layout,
+                                                                      pairs=computed_so_far), settings)
+        model = summary["levels"].get(corrected.name, {})
+        if "error" in model:
+            # nothing can say which rows cannot reach the top: compute every one
+            stems, done = library, True
+            info = {"note": f"the corrected level could not be fitted ({model['error']}): every row computed"}
+        else:
+            c = model["correction"]
+            reach = c["half_width_log10"] * c["bound_kJmol"] / c["half_width_kJmol"] if c["half_width_kJmol"] else 0.0
+            stems, info = ct.contenders(sites, table, set(computed_so_far), first, corrected, settings.placing,
+                                        reach, int(opts["top"]))
+            info["correction"] = {k: c[k] for k in ("terms", "n_sites", "loo_mae_kJmol", "loo_spearman",
+                                                    "half_width_kJmol", "bound_kJmol")}
+            done = not stems or r + 1 >= int(opts["max_rounds"])
+    new = [s for s in dict.fromkeys(stems) if s in manifest["transitions"] and s not in set(computed_so_far)]
+    out = {"round": r, "level": first.name, "lkey": first.key(), "rows": mode, "pairs": new,
+           "computed_before": len(computed_so_far), "done": done, **info,
+           "batches": level_batches(manifest | {"batches": {"transition": {}}}, first, new, layout)}
     write_json(out, out_path)
     return out
+
+
+def _reference_stems(manifest: dict) -> list[str]:
+    return [transition_stem(i["key"], rec["dienophile"]["thash"]) for rec in manifest["reference_records"]
+            if rec["status"] == "ok" for i in rec["isomers"]]
 
 
 def thermal_source(settings: cfg.Settings):
@@ -368,7 +435,7 @@ def level_pair(settings: cfg.Settings, manifest: dict, stem: str, level: cfg.Lev
 
 
 def compute_level_pairs(manifest_path, plan_path, bid: str, out_path, results="results", threads: int = 1) -> dict:
-    """One batch of pairs at a level (listed in the manifest, or in the shortlist)."""
+    """One batch of pairs at a level (listed in the manifest, or in a round of the first level)."""
     t0 = time.perf_counter()
     layout = Layout(results)
     manifest = read_json(manifest_path)
@@ -403,11 +470,11 @@ def _load(path, what: str) -> dict:
         return {"status": "corrupt_result", "message": f"{Path(path).name} unreadable: {exc}", "sites": {}}
 
 
-def load_computed(manifest: dict, settings: cfg.Settings, layout: Layout, shortlist_path=None):
+def load_computed(manifest: dict, settings: cfg.Settings, layout: Layout, pairs=None):
     """Every result file the run needs: structures, transition structures, dienophiles, and
     each priced level's pair results (a pair that level does not compute is left out; one
-    that is missing or unreadable carries its status)."""
-    shortlist_path = Path(shortlist_path or layout.shortlist)
+    that is missing or unreadable carries its status). `pairs`: the first level's pairs where it
+    does not compute every row (default: those of its rounds so far)."""
     from .ranking import Computed
     structures = {k: _load(layout.structure(k), "result") for k in manifest["structures"]}
     transitions = {s: _load(layout.transition(s), "transition-structure") for s in manifest["transitions"]}
@@ -418,10 +485,12 @@ def load_computed(manifest: dict, settings: cfg.Settings, layout: Layout, shortl
             dienophiles[dhash] = d
     levels = {}
     for level in settings.priced_levels:
-        if settings.rows_for(level) == "all":
+        if level.name != settings.ranking_levels[0].name or first_level_rows(manifest, settings) == "all":
             stems = list(manifest["transitions"])
+        elif pairs is not None:
+            stems = list(pairs)
         else:
-            stems = read_json(shortlist_path)["pairs"] if shortlist_path.is_file() else []
+            stems = list(dict.fromkeys(s for r in round_chain(layout) for s in r["pairs"]))
         levels[level.name] = {s: _load(layout.level_pair(level.key(), s), f"{level.name} result") for s in stems}
     return Computed(structures, transitions, dienophiles, levels)
 
@@ -433,15 +502,28 @@ def rank_tables(manifest: dict, computed, settings: cfg.Settings):
     from . import ranking
     sites = ranking.site_table(manifest["records"], computed, settings)
     ref_table = ranking.reference_rows(manifest["reference_records"], computed, settings)
-    models = {}
+    models, fits = {}, {}
     for level in settings.ranking_levels:
-        try:
-            fit, summary, ref_level = ranking.fit_reference(ref_table, settings, level)
-        except ValueError as exc:
-            models[level.name] = {"level": level.label(), "name": level.name, "error": str(exc)}
-            continue
-        models[level.name] = summary
-        ref_table = ref_table.join(ref_level)
+        if level.corrects:
+            # the target level's model on the estimated barrier: one scale for both kinds of row
+            sites, ref_table, info = ranking.corrected_level(sites, ref_table, level, settings)
+            target = models.get(level.target.name, {})
+            if "error" in info or "error" in target:
+                models[level.name] = {"level": level.label(), "name": level.name,
+                                      "error": info.get("error") or f"{level.target.name}: {target['error']}"}
+                continue
+            slope = abs(float(target["coefficients"].get("barrier_kJmol", 0.0)))
+            info["half_width_log10"] = round(slope * info["half_width_kJmol"], 3)
+            fit, summary = fits[level.target.name], target | {"name": level.name, "level": level.label(),
+                                                              "correction": info}
+        else:
+            try:
+                fit, summary, ref_level = ranking.fit_reference(ref_table, settings, level)
+            except ValueError as exc:
+                models[level.name] = {"level": level.label(), "name": level.name, "error": str(exc)}
+                continue
+            ref_table = ref_table.join(ref_level)
+        models[level.name], fits[level.name] = summary, fit
         if len(sites):
             sites = ranking.predict_sites(sites, fit, settings, summary, level)
     fitted = [lv.name for lv in settings.ranking_levels if "error" not in models[lv.name]]
@@ -474,8 +556,32 @@ def rank(manifest_path, out_dir, results="results") -> list[str]:
                 "backend_note": manifest.get("backend_note", ""),
                 "dienophile": {k: run_dph.get(k) for k in ("smiles", "homo_eV", "lumo_eV", "reactive_bond")},
                 "config": settings.as_config()}     # the run's whole config: `dienes look` predicts with the same
+    summary["computed_rows"] = computed_rows(manifest, settings, layout, table)
     outputs.write_model(summary, out.output("model.json"))
     return outputs.summary_lines(table, out.root, summary)
+
+
+def computed_rows(manifest: dict, settings: cfg.Settings, layout: Layout, table) -> dict:
+    """What the first ranking level computed and what that risked: rows ranked there and on each
+    other level, and, where it computed its rows in rounds, each round's additions, the
+    correction's error and the rows nearest the last cut."""
+    first = settings.ranking_levels[0]
+    ranked = table[table["rank"].notna()]
+    out = {"level": first.name, "rows": first_level_rows(manifest, settings),
+           "ranked_by_level": {str(k): int(v) for k, v in ranked["level"].value_counts().items()}}
+    if out["rows"] == "all":
+        return out
+    chain = round_chain(layout)
+    last = next((r for r in reversed(chain) if "cut_log10_k" in r), {})
+    out |= {"rounds": len(chain), "pairs_per_round": [len(r["pairs"]) for r in chain],
+            "pairs_computed": sum(len(r["pairs"]) for r in chain), "pairs_in_run": len(manifest["transitions"]),
+            "ended": "no contender left" if chain and chain[-1].get("done") and not chain[-1]["pairs"]
+            else ("limit of rounds" if len(chain) >= int(settings["ranking"]["contenders"]["max_rounds"])
+                  else "one round (ranking.rows N)" if isinstance(out["rows"], int) else "every row computed"),
+            "cut_log10_k": last.get("cut_log10_k"), "cut_place": last.get("cut_place"),
+            "reach_log10": last.get("reach_log10"), "nearest_cut": last.get("nearest_cut", []),
+            "note": next((r["note"] for r in chain if r.get("note")), "")}
+    return out
 
 
 def plan_steps(manifest_path, results="results"):
@@ -484,7 +590,6 @@ def plan_steps(manifest_path, results="results"):
     layout = Layout(results)
     manifest = read_json(manifest_path)
     settings = settings_of(manifest)
-    shortlist_path = Path(manifest_path).with_name("shortlist.json")
     for bid in manifest["batches"]["structures"]:
         yield "structures", lambda bid=bid: compute_structures(manifest_path, bid, layout.batch("structures", bid),
                                                                results)
@@ -495,12 +600,15 @@ def plan_steps(manifest_path, results="results"):
         yield "transition", lambda bid=bid: compute_transitions(manifest_path, bid, layout.batch("transition", bid),
                                                                 results)
     plans = [(manifest_path, manifest["batches"]["level"])]
-    if any(settings.rows_for(lv) != "all" for lv in settings.priced_levels):
-        plans.append((shortlist_path, None))
+    if first_level_rows(manifest, settings) != "all":
+        plans += [(layout.level_round(r), None) for r in range(int(settings["ranking"]["contenders"]["max_rounds"]))]
     for plan_path, batches in plans:
         if batches is None:
-            yield "shortlist", lambda: shortlist(manifest_path, shortlist_path, results)
-            batches = read_json(shortlist_path)["batches"]
+            r = int(Path(plan_path).stem.removeprefix("round"))
+            if r and read_json(layout.level_round(r - 1)).get("done"):
+                break
+            yield "level round", lambda r=r, p=plan_path: level_round(manifest_path, r, p, results)
+            batches = read_json(plan_path)["batches"]
         for bid, batch in batches.items():
             for dhash in batch["dienophiles"]:
                 path = layout.level_dienophile(batch["lkey"], dhash)
@@ -533,7 +641,7 @@ def rank_in_process(settings, cache_dir=None, reference_ids=None, manifest_path=
             write_json(manifest, manifest_path)
         for _, step in plan_steps(manifest_path, cache):
             step()
-        computed = load_computed(manifest, settings, Layout(cache), manifest_path.with_name("shortlist.json"))
+        computed = load_computed(manifest, settings, Layout(cache))
         table, sites, summary, _ = rank_tables(manifest, computed, settings)
     return table, sites, summary
 

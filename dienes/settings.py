@@ -76,15 +76,30 @@ def load_schema(path=SCHEMA_PATH) -> dict:
     return yaml.safe_load(_schema_text(str(path)))
 
 
-def _coerce(value, schema: dict):
+def _branch(value, schema: dict, root: dict) -> dict:
+    """The part of `schema` that applies to `value`: a $ref resolved, and an if/then/else on
+    constant properties (a level's program) followed."""
+    while True:
+        if "$ref" in schema:
+            schema = root["$defs"][schema["$ref"].rsplit("/", 1)[-1]]
+        elif "if" in schema and isinstance(value, dict):
+            consts = {k: v.get("const") for k, v in schema["if"].get("properties", {}).items()}
+            schema = schema["then"] if all(value.get(k) == c for k, c in consts.items()) else schema.get("else", {})
+        else:
+            return schema
+
+
+def _coerce(value, schema: dict, root: dict | None = None):
     """Strings where the schema wants a number or a flag become one: Snakemake's
     --config hands nested values over as text (ranking={rows: 10} gives '10')."""
+    root = root if root is not None else schema
+    schema = _branch(value, schema, root)
     kind = schema.get("type")
-    if isinstance(value, dict) and kind == "object":
-        props = schema.get("properties", {})
-        return {k: _coerce(v, props.get(k, {})) for k, v in value.items()}
+    if isinstance(value, dict) and (kind == "object" or "properties" in schema):
+        props, extra = schema.get("properties", {}), schema.get("additionalProperties")
+        return {k: _coerce(v, props.get(k, extra if isinstance(extra, dict) else {}), root) for k, v in value.items()}
     if isinstance(value, list) and kind == "array":
-        return [_coerce(v, schema.get("items", {})) for v in value]
+        return [_coerce(v, schema.get("items", {}), root) for v in value]
     if isinstance(value, str):
         try:
             if kind == "integer" or (not kind and schema.get("oneOf") and value.isdigit()):
@@ -135,8 +150,15 @@ class Level:
     """One named level of theory of a run."""
 
     name: str
-    program: str                 # "xtb" (places the atoms) or "pyscf" (single points)
+    program: str                 # "xtb" (places the atoms), "pyscf" (single points) or "correction"
     options: tuple               # ((key, value), ...) as validated, defaults filled in
+    target: "Level | None" = None   # a correction level's single-point level
+
+    @property
+    def corrects(self) -> bool:
+        """A corrected fast level: the target level's barrier estimated from GFN2-xTB terms
+        (dienes.correction), fitted in each run on the rows the target level computed."""
+        return self.program == "correction"
 
     @property
     def places_atoms(self) -> bool:
@@ -149,6 +171,8 @@ class Level:
     def barrier(self) -> str:
         """Which barrier ranks at this level: free_energy or electronic (the located
         GFN2-xTB saddle gives an electronic barrier)."""
+        if self.corrects:
+            return self.target.barrier
         return "electronic" if self.places_atoms else self.option("barrier", "free_energy")
 
     def dft_settings(self):
@@ -160,12 +184,14 @@ class Level:
 
     def label(self) -> str:
         """The level as a chemist writes it: GFN2-xTB, B3LYP/def2-SVP, ..."""
+        if self.corrects:
+            return f"{self.target.label()} estimated from GFN2-xTB"
         return "GFN2-xTB" if self.places_atoms else self.dft_settings().label()
 
     def hash(self) -> str:
         """Names the folder of this level's priced results: the settings that change a priced
         number, code defaults included (the barrier kind and which rows are priced do not)."""
-        if self.places_atoms:
+        if self.places_atoms or self.corrects:
             return ""
         return settings_hash({"level": self.dft_settings().as_dict(), "version": PRICING_VERSION})
 
@@ -190,9 +216,12 @@ class Settings(Mapping):
     def __init__(self, data: dict, backend_note: str = ""):
         object.__setattr__(self, "_data", _freeze(data))
         object.__setattr__(self, "backend_note", backend_note)
-        object.__setattr__(self, "_levels", {
-            name: Level(name, spec["program"], tuple(sorted((k, v) for k, v in spec.items() if k != "program")))
-            for name, spec in data["levels"].items()})
+        levels = {name: Level(name, spec["program"], tuple(sorted((k, v) for k, v in spec.items() if k != "program")))
+                  for name, spec in data["levels"].items()}
+        for name, lv in levels.items():
+            if lv.corrects:
+                levels[name] = Level(name, lv.program, lv.options, levels[lv.option("target")])
+        object.__setattr__(self, "_levels", levels)
 
     def __setattr__(self, name, value):
         raise AttributeError("Settings are read-only: build new ones with replace()")
@@ -241,15 +270,24 @@ class Settings(Mapping):
     @property
     def priced_levels(self) -> list[Level]:
         """The single-point levels of the ranking (the ones whose results are computed)."""
-        return [lv for lv in self.ranking_levels if not lv.places_atoms]
+        return [lv for lv in self.ranking_levels if lv.program == "pyscf"]
 
     @property
     def rows(self):
-        """Rows the first ranking level computes: 'all', or N (the N best at the next level)."""
+        """Rows the first ranking level computes as configured: 'all', 'contenders', 'auto' or N
+        (the N best at the next level)."""
         return self._data["ranking"]["rows"]
 
+    def rows_mode(self, n_library: int):
+        """What ranking.rows means for a library of n_library rows: 'all', 'contenders' or N
+        ('auto' is 'all' up to ranking.contenders.from_rows rows, 'contenders' above)."""
+        rows = self.rows
+        if rows == "auto":
+            return "contenders" if n_library > self._data["ranking"]["contenders"]["from_rows"] else "all"
+        return rows
+
     def rows_for(self, level: Level):
-        """'all', or N where `level` is the first ranking level and ranking.rows is N."""
+        """ranking.rows where `level` is the first ranking level, else 'all'."""
         first = self.ranking_levels[0]
         return self.rows if level.name == first.name else "all"
 
@@ -301,7 +339,7 @@ class Settings(Mapping):
 def _level_defaults(levels: dict, schema: dict) -> None:
     """Fill each level's defaults from the schema definition of its program."""
     for spec in levels.values():
-        if isinstance(spec, dict) and spec.get("program") in ("xtb", "pyscf"):
+        if isinstance(spec, dict) and spec.get("program") in ("xtb", "pyscf", "correction"):
             props = schema["$defs"][f"{spec['program']}_level"]["properties"]
             for key, sub in props.items():
                 if "default" in sub:
@@ -317,11 +355,28 @@ def _check_levels(cfg: dict) -> list[str]:
     for name in ranking["levels"]:
         if name not in levels:
             problems.append(f"ranking/levels: {name!r} is not a level named under levels ({', '.join(levels)})")
+    for name, spec in levels.items():
+        if spec.get("program") == "correction":
+            target = levels.get(spec.get("target"), {})
+            if target.get("program") != "pyscf":
+                problems.append(f"levels/{name}/target: {spec.get('target')!r} is not a single-point level "
+                                f"(program: pyscf) named under levels")
+            elif name in ranking["levels"] and (spec["target"] not in ranking["levels"] or ranking["levels"].index(
+                    spec["target"]) > ranking["levels"].index(name)):
+                problems.append(f"ranking/levels: the corrected level {name} follows its target {spec['target']}")
+    if ranking["levels"] and levels.get(ranking["levels"][0], {}).get("program") == "correction":
+        problems.append("ranking/levels: a corrected level cannot rank first (it is fitted on its target's rows)")
     if ranking["rows"] != "all":
         first = levels.get(ranking["levels"][0], {})
-        if len(ranking["levels"]) < 2 or first.get("program") == "xtb":
-            problems.append("ranking/rows: N lets the first ranking level, a single-point one, compute only the N "
-                            "best rows at the next level: name two levels, the single-point level first")
+        if len(ranking["levels"]) < 2 or first.get("program") != "pyscf":
+            problems.append("ranking/rows: N, contenders or auto let the first ranking level, a single-point one, "
+                            "compute only some rows: name two levels, the single-point level first")
+        elif ranking["rows"] in ("contenders", "auto") and not any(
+                levels.get(n, {}).get("program") == "correction" and levels[n].get("target") == ranking["levels"][0]
+                for n in ranking["levels"]):
+            problems.append(f"ranking/rows: {ranking['rows']} ranks the rows not recomputed at "
+                            f"{ranking['levels'][0]} on a corrected level: add one to levels (program: correction, "
+                            f"target: {ranking['levels'][0]}) and to ranking/levels")
     return problems
 
 

@@ -19,11 +19,16 @@ def test_settings_are_read_only(config):
 
 
 def test_the_shipped_levels_and_what_ranks(config):
-    assert [lv.name for lv in config.ranking_levels] == ["dft", "gfn2"]
+    assert [lv.name for lv in config.ranking_levels] == ["dft", "corrected", "gfn2"]
     assert config.placing.name == "gfn2" and config.placing.label() == "GFN2-xTB"
-    dft = config.levels["dft"]
+    dft, corrected = config.levels["dft"], config.levels["corrected"]
     assert dft.label() == "B3LYP/def2-SVP" and dft.barrier == "free_energy" and config.placing.barrier == "electronic"
-    assert [lv.name for lv in config.priced_levels] == ["dft"] and config.rows == "all"
+    # the corrected level computes nothing of its own: it estimates dft's barrier, of dft's kind
+    assert corrected.corrects and corrected.target is dft and corrected.barrier == "free_energy"
+    assert corrected.label() == "B3LYP/def2-SVP estimated from GFN2-xTB"
+    assert [lv.name for lv in config.priced_levels] == ["dft"] and config.rows == "auto"
+    # auto: every row up to ranking.contenders.from_rows library rows (150 as shipped), contenders above
+    assert config.rows_mode(150) == "all" and config.rows_mode(151) == "contenders"
     assert dft.key().startswith("dft-") and len(dft.hash()) == 10
 
 
@@ -42,6 +47,11 @@ def test_an_old_key_gets_one_line_saying_what_replaced_it(config, old, says):
     ({"levels": {"gfn2": {"program": "xtb"}, "alt": {"program": "xtb"}, "dft": {"program": "pyscf"}}},
      "exactly one level with program: xtb"),
     ({"ranking": {"levels": ["gfn2"], "rows": 5}}, "ranking/rows: N"),
+    ({"ranking": {"levels": ["dft", "gfn2"], "rows": "contenders"}}, "add one to levels .program: correction"),
+    ({"ranking": {"levels": ["corrected", "dft", "gfn2"]}}, "cannot rank first"),
+    ({"ranking": {"levels": ["dft", "gfn2", "corrected"]}, "levels": {"gfn2": {"program": "xtb"},
+      "dft": {"program": "pyscf"}, "corrected": {"program": "correction", "target": "gfn2"}}},
+     "'gfn2' is not a single-point level"),
     ({"levels": {"gfn2": {"program": "xtb"}, "Bad_Name": {"program": "pyscf"}}}, "levels"),
     ({"levels": {"gfn2": {"program": "xtb"}, "dft": {"program": "pyscf", "basis": 3}}}, "levels"),
 ])

@@ -176,8 +176,10 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     assert all(r["dienophile"] == "C=CC#N" and r["dienophile_in_reference"] == "False" for r in rows if r["rank"])
 
 
-def test_the_quick_screen_a_shortlist_and_a_third_level_by_configuration(tmp_path):
-    _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b")], ranking={"levels": ["gfn2"]})
+def test_the_quick_screen_a_shortlist_contenders_and_a_third_level_by_configuration(tmp_path):
+    # butadiene, cyclopentadiene, chloroprene and 1,3-cyclohexadiene: none of them in this reference set
+    _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b"), ("T-3", "C=CC(Cl)=C", "c"),
+                      ("T-4", "C1=CCCC=C1", "d")], ranking={"levels": ["gfn2"]})
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
@@ -189,17 +191,48 @@ def test_the_quick_screen_a_shortlist_and_a_third_level_by_configuration(tmp_pat
     assert "GFN2-xTB level only" in (tmp_path / "results" / "report.html").read_text()
 
     # ranking.rows 1 computes the best GFN2-xTB row and the reference set at dft, nothing else;
-    # the other row is ranked at gfn2 and says why
+    # the other rows are ranked at gfn2 and say why
     run = _snakemake(tmp_path, "--config", "ranking={levels: [dft, gfn2], rows: 1}")
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)
-    assert jobs["shortlist"] == 1 and jobs["level_pairs"] == 1 + len(REFERENCE_IDS)
+    assert jobs["level_round"] == 1 and jobs["level_pairs"] == 1 + len(REFERENCE_IDS)
     assert "compute_structures" not in jobs and "compute_transitions" not in jobs
     rows = {r["id"]: r for r in _ranking(tmp_path)}
     best_gfn2 = min(rows.values(), key=lambda r: int(r["gfn2_rank"]))
-    other = next(r for r in rows.values() if r is not best_gfn2)
-    assert best_gfn2["level"] == "dft" and other["level"] == "gfn2"
-    assert "ranked at gfn2: not computed at dft: not among the 1 best rows at gfn2" in other["message"]
+    assert best_gfn2["level"] == "dft"
+    for other in (r for r in rows.values() if r is not best_gfn2):
+        assert other["level"] == "gfn2"
+        assert "ranked at gfn2: not computed at dft: not among the 1 best rows at gfn2" in other["message"]
+
+    # contenders: round 0 adds a first sample (here one row) to the reference set, later rounds the
+    # rows whose corrected estimate could reach the top (here the first place); the rest are ranked
+    # on the corrected level, and no row of the full ranking's tier 1 is left to the estimate
+    contenders = ("ranking={levels: [dft, corrected, gfn2], rows: contenders, "
+                  "contenders: {top: 1, min_first: 1, first_share: 0.01}}")
+    run = _snakemake(tmp_path, "--config", contenders, "levels={corrected: {min_sites: 5}}")
+    assert run.returncode == 0, run.stderr[-3000:]
+    rounds = [json.loads(p.read_text()) for p in sorted((tmp_path / "results" / "rounds").glob("round*.json"))]
+    assert jobs_run(run)["level_round"] == len(rounds) >= 2 and rounds[-1]["done"]
+    assert rounds[0]["first_sample"] == 1 and rounds[1]["correction"]["n_sites"] >= 5
+    part = {r["id"]: r for r in _ranking(tmp_path)}
+    computed = sum(len(r["pairs"]) for r in rounds)
+    assert {r["level"] for r in part.values()} <= {"dft", "corrected"} and all(r["rank"] for r in part.values())
+    model = json.loads((tmp_path / "results" / "model.json").read_text())
+    corr = model["levels"]["corrected"]
+    assert corr["level"] == "B3LYP/STO-3G estimated from GFN2-xTB" and corr["correction"]["half_width_log10"] > 0
+    for r in part.values():
+        if r["level"] == "corrected":
+            # its interval adds the correction's own error to the model's
+            half = (float(r["log10_k_high"]) - float(r["log10_k_low"])) / 2
+            assert half >= corr["correction"]["half_width_log10"] - 1e-6
+            assert "could not reach the top 1 or tier 1" in r["message"]
+    run = _snakemake(tmp_path, "--config", "ranking={levels: [dft, corrected, gfn2], rows: all}")
+    assert run.returncode == 0, run.stderr[-3000:]
+    full = {r["id"]: r for r in _ranking(tmp_path)}
+    assert all(r["level"] == "dft" for r in full.values())
+    tier1 = [i for i, r in full.items() if r["tier"] == "1"]
+    assert tier1 and all(part[i]["level"] == "dft" for i in tier1), (tier1, computed)
+    assert part[min(full, key=lambda i: int(full[i]["rank"]))]["rank"] == "1"
 
     # a third level named in the config alone ranks, the other two beside it: no code knows its name
     run = _snakemake(tmp_path, "--config", "levels={hf: {program: pyscf, method: hf, basis: sto-3g}}",

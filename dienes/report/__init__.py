@@ -22,7 +22,7 @@ from rdkit import Chem
 from rdkit.Chem.Draw import rdMolDraw2D
 
 from ..dienophiles import name_of
-from ..outputs import (accuracy_text, hours_text, interval_label, is_true, level_text, scale_text, time_text,
+from ..outputs import (accuracy_text, computed_text, hours_text, interval_label, is_true, level_text, scale_text, time_text,
                        times_text)
 from ..ranking import col, ranking_model
 
@@ -409,7 +409,8 @@ def tier_lines(table: pd.DataFrame, model: dict, tiers: int = 2) -> list[tuple[i
             times = times_text(r.get("times_faster_than_butadiene"))
             flags = [] if is_true(r["in_domain"]) else ["extrapolation"]
             if str(r.get("level")) != model.get("ranking_level"):
-                flags.append(f"at {r.get('level')}")
+                lv = model.get("levels", {}).get(str(r.get("level")), {})
+                flags.append("estimated, not recomputed" if lv.get("correction") else f"at {r.get('level')}")
             if r.get("status") == "ts_unverified":
                 flags.append("saddle not verified")
             hl = hours_text(r.get("half_life_h"))
@@ -432,6 +433,7 @@ def try_first(table: pd.DataFrame, model: dict) -> dict:
             "dienophile": model.get("run_dienophile", ""),
             "level": f"{model.get('ranking_level')} ({ranking_model(model).get('level', '')})" if ranking_model(model) else "",
             "accuracy": accuracy_text(model), "time": time_text(model),
+            "computed": (computed_text(model)[:1].upper() + computed_text(model)[1:] + ".") if computed_text(model) else "",
             "how": (f"Tiers: walking down the ranking, a new tier starts where a diene lies more than {width:.2f} "
                     "log units (sqrt(2) x the leave-one-out error) below the first diene of its tier; within a "
                     "tier the model cannot tell the dienes apart, so try them in any order." if width else ""),
@@ -453,9 +455,16 @@ def level_line(table: pd.DataFrame, model: dict) -> str:
     kind = (" (free-energy barriers: GFN2-xTB thermal corrections, conformer ensemble)"
             if m.get("barrier_kind") == "free_energy" else " (electronic barriers)")
     others = ranked.loc[ranked["level"] != name, "level"].value_counts()
+
+    def why(lv: str, n: int) -> str:
+        corr = model.get("levels", {}).get(lv, {}).get("correction")
+        if corr:
+            return (f"; {n} ranked at {lv}: {name}'s barrier estimated from GFN2-xTB terms ({', '.join(corr['terms'])}), "
+                    f"fitted on the {corr['n_sites']} sites {name} computed in this run, its error (mean "
+                    f"{corr['loo_mae_kJmol']:.1f} kJ/mol) added to their intervals")
+        return f"; {n} ranked at {lv} (their {name} value failed or was not computed; see their message)"
     return (f"{name}: {m.get('level')} single points on GFN2-xTB structures{kind} for {n_first} of {len(ranked)} "
-            "ranked rows" + "".join(f"; {n} ranked at {lv} (their {name} value failed or was not computed; see "
-                                    "their message)" for lv, n in others.items()))
+            "ranked rows" + "".join(why(lv, n) for lv, n in others.items()))
 
 
 # ------------------------------------------------------------------ the page

@@ -23,7 +23,6 @@ if _problem:
 
 L = Layout("results")
 MANIFEST = str(L.manifest)
-SHORTLIST = str(L.shortlist)
 if workflow.is_main_process:
     runlock.claim()
     # before Snakemake looks at the files: an unreadable result is moved aside, and a
@@ -40,15 +39,16 @@ if workflow.is_main_process:
 # results are named by their own settings hash and are reused
 CONFIG_HASH = SETTINGS.config_hash(dienes.__version__)
 
-# ranking.rows N: the first ranking level computes only the rows the shortlist names
-NEEDS_SHORTLIST = any(SETTINGS.rows_for(level) != "all" for level in SETTINGS.priced_levels)
+# ranking.rows N, contenders or auto: prepare records what the first level computes; where it is
+# not every row, the rows come in rounds (the level_round checkpoints)
+MAX_ROUNDS = int(SETTINGS["ranking"]["contenders"]["max_rounds"])
 
 
 # cheap whole-run steps stay on the submit host when a cluster executor is used
 localrules:
     all,
     prepare,
-    shortlist,
+    level_round,
     rank,
     report,
 
@@ -57,6 +57,7 @@ wildcard_constraints:
     bid=r"[0-9a-f]{12}",
     dhash=r"[0-9a-f]{10}",
     lkey=r"[a-z][a-z0-9]{0,15}-[0-9a-f]{10}",
+    round=r"[0-9]+",
 
 
 def manifest():
@@ -72,13 +73,50 @@ def batch_flag(stage, bid):
     return str(L.batch(stage, bid))
 
 
-def level_plan() -> dict:
-    """Every batch of single points of this run: listed in the manifest (levels that compute
-    every row) and, with ranking.rows N, in the shortlist checkpoint."""
-    plan = dict(manifest()["batches"]["level"])
-    if NEEDS_SHORTLIST:
-        plan |= read_json(checkpoints.shortlist.get().output[0])["batches"]
-    return plan
+def in_rounds() -> bool:
+    """Whether the first ranking level computes its rows in rounds (prepare decided)."""
+    first = SETTINGS.ranking_levels[0].name
+    return manifest()["levels"].get(first, {}).get("rows", "all") != "all"
+
+
+def rounds(upto=None):
+    """The finished rounds of the first level, in order, up to the one that ends them (or
+    round `upto`, exclusive): [(round file, its content)]. Asking for a round not yet written
+    makes Snakemake run its checkpoint and come back."""
+    out = []
+    for r in range(MAX_ROUNDS if upto is None else upto):
+        path = checkpoints.level_round.get(round=r).output[0]
+        out.append((path, read_json(path)))
+        if out[-1][1]["done"]:
+            break
+    return out
+
+
+def level_batch(bid: str) -> tuple[str, dict]:
+    """(plan file, batch) of one batch of single points: the manifest's, or the round that added
+    it. Rounds are read in order and only up to that round, so a batch never waits for a later
+    round (which waits for it)."""
+    if bid in manifest()["batches"]["level"]:
+        return MANIFEST, manifest()["batches"]["level"][bid]
+    r = 0
+    while in_rounds() and r < MAX_ROUNDS:
+        path = checkpoints.level_round.get(round=r).output[0]
+        data = read_json(path)
+        if bid in data["batches"]:
+            return path, data["batches"][bid]
+        if data["done"]:
+            break
+        r += 1
+    raise ValueError(f"batch {bid} is in no plan of this run")
+
+
+def get_earlier_round_input(wildcards):
+    """Round r reads what rounds 0..r-1 computed: the previous round's file and its batches."""
+    r = int(wildcards.round)
+    if r == 0:
+        return []
+    path, data = rounds(r)[-1]
+    return [path] + [batch_flag("level", b) for b in data["batches"]]
 
 
 def get_transition_input(wildcards):
@@ -90,7 +128,7 @@ def get_transition_input(wildcards):
 def batch_runtime(stage, minutes_each):
     """Cluster runtime (minutes) of a batch job: minutes_each per member, at least 10."""
     def runtime(wildcards):
-        batch = (level_plan() if stage == "level" else manifest()["batches"][stage])[wildcards.bid]
+        batch = level_batch(wildcards.bid)[1] if stage == "level" else manifest()["batches"][stage][wildcards.bid]
         members = batch["members"] if isinstance(batch, dict) else batch
         return max(10, minutes_each * len(members))
     return runtime
@@ -106,18 +144,20 @@ def get_computed_input(wildcards):
 
 
 def get_level_plan_file(wildcards):
-    """Where a batch of single points is listed: the manifest, or the shortlist."""
-    return ancient(MANIFEST if wildcards.bid in manifest()["batches"]["level"] else SHORTLIST)
+    """Where a batch of single points is listed: the manifest, or the round that added it."""
+    return ancient(level_batch(wildcards.bid)[0])
 
 
 def get_level_input(wildcards):
-    batch = level_plan()[wildcards.bid]
+    batch = level_batch(wildcards.bid)[1]
     return ([batch_flag("transition", b) for b in batch["needs"]]
             + [str(L.level_dienophile(batch["lkey"], d)) for d in batch["dienophiles"]])
 
 
 def get_rank_input(wildcards):
-    """Everything the ranking reads: the computed batches, and the shortlist's with ranking.rows N."""
-    extra = ([SHORTLIST] + [batch_flag("level", b) for b in level_plan() if b not in manifest()["batches"]["level"]]
-             if NEEDS_SHORTLIST else [])
+    """Everything the ranking reads: the computed batches, and the rounds' files and batches."""
+    extra = []
+    if in_rounds():
+        for path, data in rounds():
+            extra += [path] + [batch_flag("level", b) for b in data["batches"]]
     return get_computed_input(wildcards) + extra

@@ -1,24 +1,26 @@
 # Single points at each priced level of the ranking (PySCF on the GFN2-xTB structures). The
 # pairs still to compute are cut into batches like the other stages (listed in the manifest,
-# or in the shortlist checkpoint for ranking.rows N); each dienophile is computed once per
+# or, where the first level does not compute every row, in its rounds: one checkpoint per
+# round, each reading what the rounds before it computed); each dienophile is computed once per
 # level. Results live under results/levels/<level>-<settings hash>/, so another level or more
 # dienes compute only what is new.
 
 
-checkpoint shortlist:
+checkpoint level_round:
     input:
         manifest=MANIFEST,
         computed=get_computed_input,
+        earlier=get_earlier_round_input,
     params:
         config_hash=CONFIG_HASH,
     output:
-        SHORTLIST,
+        str(L.level_round()),
     conda:
         "../envs/dienes.yaml"
     log:
-        "logs/shortlist.log",
+        "logs/rounds/round{round}.log",
     script:
-        "../scripts/shortlist.py"
+        "../scripts/level_round.py"
 
 
 rule level_dienophile:

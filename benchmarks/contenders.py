@@ -1,0 +1,149 @@
+"""Computing only the contenders against computing every row, on a finished run's results.
+
+    python benchmarks/contenders.py --results RUN/results [--config RUN/config/config.yaml]
+                                    [--library LIB.csv] [--top 20] [--out table.json]
+
+The run must have computed every row at the first ranking level (ranking.rows all). The rounds
+(dienes.contenders) are replayed in a scratch folder that sees the run's GFN2-xTB results and,
+at the first level, only what the rounds ask for: each pair a round asks for is copied from the
+run instead of computed, and charged its recorded single-point time (the diene's minima the first
+time that diene is asked for, the pair's transition structures, the dienophile once). The full
+ranking is the same code with every pair. Prints the cost ratio (single-point core-seconds),
+tier-1 membership, top-10 overlap, Spearman over all ranked rows, the largest rank change inside
+the top 20, the rounds, and how often a row ranked on the corrected level has its full-ranking
+prediction inside its interval. Computes nothing new.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import tempfile
+from pathlib import Path
+
+import numpy as np
+from scipy import stats
+
+from dienes import run
+from dienes import settings as cfg
+from dienes.layout import Layout, read_json, write_json
+
+
+def _cost(path: Path) -> float:
+    try:
+        return float(read_json(path).get("wall_time_s") or 0.0)
+    except (FileNotFoundError, ValueError):
+        return 0.0
+
+
+class Replay:
+    """Stands in for the single points: copies a result from the finished run and charges its time."""
+
+    def __init__(self, source: Layout, scratch: Layout):
+        self.source, self.scratch, self.seconds, self.pairs = source, scratch, 0.0, 0
+
+    def pair(self, settings, manifest, stem, level, energies, layout):
+        lkey = level.key()
+        task = manifest["transitions"][stem]
+        s_src, s_dst = self.source.level_structure(lkey, task["key"]), layout.level_structure(lkey, task["key"])
+        if s_src.is_file() and not s_dst.is_file():
+            s_dst.parent.mkdir(parents=True, exist_ok=True)
+            shutil.copy(s_src, s_dst)
+            self.seconds += _cost(s_src)
+        src = self.source.level_pair(lkey, stem)
+        r = read_json(src)
+        write_json(r, layout.level_pair(lkey, stem))
+        self.seconds += _cost(src)
+        self.pairs += 1
+        return r
+
+    def dienophile(self, manifest_path, lkey, dhash, out_path, results="results", threads=1):
+        src = self.source.level_dienophile(lkey, dhash)
+        write_json(read_json(src), out_path)
+        self.seconds += _cost(src)
+        return read_json(src)
+
+
+def _scratch(source: Path, root: Path) -> Layout:
+    """A results folder that shares the run's GFN2-xTB results and has no single points."""
+    root.mkdir(parents=True)
+    for part in ("structures", "transition", "dienophiles"):
+        (root / part).symlink_to((source / part).resolve())
+    return Layout(root)
+
+
+def ranked(table):
+    t = table[table["rank"].notna()].sort_values("rank")
+    return t.set_index("id")
+
+
+def compare(full, part) -> dict:
+    f, p = ranked(full), ranked(part)
+    common = f.index.intersection(p.index)
+    top20 = f.index[:20]
+    shift = [abs(int(f.loc[i, "rank"]) - int(p.loc[i, "rank"])) for i in top20 if i in p.index]
+    unpriced = p[p["level"] != f["level"].reindex(p.index)]
+    inside = [(lo <= v <= hi) for lo, hi, v in zip(unpriced["log10_k_low"], unpriced["log10_k_high"],
+                                                   f["log10_k_pred"].reindex(unpriced.index))]
+    return {"ranked": int(len(common)),
+            "tier1_full": sorted(f.index[f["tier"] == 1]), "tier1_rounds": sorted(p.index[p["tier"] == 1]),
+            "tier1_identical": set(f.index[f["tier"] == 1]) == set(p.index[p["tier"] == 1]),
+            "top10_overlap": len(set(f.index[:10]) & set(p.index[:10])),
+            "spearman_all": round(float(stats.spearmanr(f.loc[common, "log10_k_pred"],
+                                                        p.loc[common, "log10_k_pred"]).statistic), 3),
+            "largest_change_top20": max(shift) if shift else 0,
+            "rows_on_corrected": int((p["level"] != f["level"].reindex(p.index)).sum()),
+            "corrected_interval_covers_full": (round(float(np.mean(inside)), 3) if inside else None)}
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--results", required=True, help="a finished run's results folder (every row computed)")
+    ap.add_argument("--config", help="its config (default: the settings its manifest recorded)")
+    ap.add_argument("--library", help="rank this library instead (its rows must be in the run)")
+    ap.add_argument("--top", type=int, help="ranking.contenders.top")
+    ap.add_argument("--out", help="write the figures as JSON here")
+    args = ap.parse_args()
+    source = Path(args.results)
+    recorded = read_json(source / "manifest.json")["run_settings"]
+    conf = cfg.load(args.config).as_config() if args.config else recorded
+    conf = conf | {"library": args.library or recorded["library"], "reference": recorded["reference"]}
+    full_settings = cfg.resolve(conf | {"ranking": conf["ranking"] | {"rows": "all"}})
+    contenders = dict(conf["ranking"].get("contenders", {})) | ({"top": args.top} if args.top else {})
+    part_settings = cfg.resolve(conf | {"ranking": conf["ranking"] | {"rows": "contenders",
+                                                                      "contenders": contenders}})
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        manifest = run.prepare(full_settings, tmp / "full.json", results=source)
+        full = run.rank_tables(manifest, run.load_computed(manifest, full_settings, Layout(source)), full_settings)
+        all_cost = sum(_cost(Layout(source).level_pair(lv.key(), s)) for lv in full_settings.priced_levels[:1]
+                       for s in manifest["transitions"])
+        first = full_settings.priced_levels[0]
+        all_cost += sum(_cost(Layout(source).level_structure(first.key(), k)) for k in manifest["structures"])
+        all_cost += sum(_cost(Layout(source).level_dienophile(first.key(), d)) for d in manifest["dienophiles"])
+        scratch = _scratch(source, tmp / "results")
+        replay = Replay(Layout(source), scratch)
+        run.level_pair, run.level_dienophile = replay.pair, replay.dienophile
+        mpath = tmp / "results" / "manifest.json"
+        run.prepare(part_settings, mpath, results=scratch.root)
+        for _, step in run.plan_steps(mpath, scratch.root):
+            step()
+        manifest = read_json(mpath)
+        part = run.rank_tables(manifest, run.load_computed(manifest, part_settings, scratch), part_settings)
+        chain = run.round_chain(scratch)
+    out = {"library_rows": len(manifest["records"]), "pairs": len(manifest["transitions"]),
+           "pairs_computed_rounds": replay.pairs, "rounds": len(chain),
+           "pairs_per_round": [len(r["pairs"]) for r in chain],
+           "cut_per_round": [r.get("cut_log10_k") for r in chain],
+           "correction_last": chain[-1].get("correction") if len(chain) > 1 else None,
+           "single_point_core_s_all": round(all_cost, 1), "single_point_core_s_rounds": round(replay.seconds, 1),
+           "cost_ratio": round(all_cost / replay.seconds, 2) if replay.seconds else None,
+           **compare(full[0], part[0])}
+    print(json.dumps(out, indent=1))
+    if args.out:
+        Path(args.out).write_text(json.dumps(out, indent=1))
+
+
+if __name__ == "__main__":
+    main()

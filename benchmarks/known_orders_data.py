@@ -1,0 +1,78 @@
+"""Write the GFN2-xTB results the known-order tests price at the shipped level
+(tests/data/known_orders.json): the structure and transition-structure results of the dienes of
+docs/validation.md's known orders with maleic anhydride, and the dienophile's result.
+
+    python benchmarks/known_orders_data.py [--cache DIR] [--out tests/data/known_orders.json]
+
+Computes them with the shipped config's GFN2-xTB settings (in-process, the workflow's own steps),
+reusing any result already in --cache (a results folder of a run with the same settings, e.g. the
+demo's). The tests then recompute every single point at the shipped density-functional level:
+only the GFN2-xTB stage is stored. Rerun this after any change to the GFN2-xTB settings (the tests
+compare the stored settings with the shipped ones and say so).
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import tempfile
+from pathlib import Path
+
+from dienes import run
+from dienes import settings as cfg
+from dienes.layout import Layout, read_json, transition_stem
+
+REPO = Path(__file__).resolve().parents[1]
+DIENES = {
+    "butadiene": "C=CC=C", "cyclopentadiene": "C1=CCC=C1", "2,3-dimethylbutadiene": "C=C(C)C(C)=C",
+    "2-tert-butylbutadiene": "C=CC(=C)C(C)(C)C", "2-phenylbutadiene": "C=CC(=C)c1ccccc1",
+    "(E)-piperylene": "C/C=C/C=C", "(Z)-piperylene": "C/C=C\\C=C", "4-methyl-1,3-pentadiene": "CC(C)=CC=C",
+    "furan": "c1ccoc1", "thiophene": "c1ccsc1", "anthracene": "c1ccc2cc3ccccc3cc2c1",
+    "9,10-dimethylanthracene": "Cc1c2ccccc2c(C)c2ccccc12",
+}
+DIENOPHILE = "O=C1OC(=O)C=C1"     # maleic anhydride
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--cache", help="a results folder to reuse and fill (default: a temporary one)")
+    ap.add_argument("--out", default=str(REPO / "tests" / "data" / "known_orders.json"))
+    args = ap.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        cache = Path(args.cache) if args.cache else tmp / "results"
+        lib, ref = tmp / "known.csv", tmp / "reference.csv"
+        with open(lib, "w", newline="") as fh:
+            csv.writer(fh).writerows([("id", "smiles")] + list(DIENES.items()))
+        with open(ref, "w", newline="") as fh:       # prepare wants a reference file: one row, not fitted here
+            csv.writer(fh).writerows([("id", "smiles", "log10_k"), ("bd", "C=CC=C", "0")])
+        shipped = cfg.load(REPO / "config" / "config.yaml")
+        settings = shipped | {"library": str(lib), "reference": str(ref), "dienophile": DIENOPHILE,
+                              "ranking": {"levels": [shipped.placing.name]}}
+        manifest_path = tmp / "manifest.json"
+        manifest = run.prepare(settings, manifest_path, results=cache)
+        for _, step in run.plan_steps(manifest_path, cache):
+            step()
+        layout = Layout(cache)
+        out = {"about": "GFN2-xTB results for tests/test_known_orders*.py; written by "
+                        "benchmarks/known_orders_data.py, never by hand",
+               "structure_settings": settings.structure_settings(),
+               "transition_state": dict(settings["transition_state"]),
+               "dienophile": read_json(layout.dienophile(manifest["run_dienophile"]["dhash"])), "dienes": {}}
+        for rec in manifest["records"]:
+            if rec["status"] != "ok" or len(rec["isomers"]) != 1:
+                raise SystemExit(f"{rec['id']}: {rec['status']} {rec['message']} ({len(rec['isomers'])} isomers)")
+            key = rec["isomers"][0]["key"]
+            transition = read_json(layout.transition(transition_stem(key, rec["dienophile"]["thash"])))
+            if not all(s.get("ts_verified") for s in transition["sites"].values() if s.get("status") == "ok"):
+                print(f"note: {rec['id']} has a site whose saddle is not verified")
+            out["dienes"][rec["id"]] = {"smiles": rec["smiles"], "structure": read_json(layout.structure(key)),
+                                        "transition": transition}
+    Path(args.out).write_text(json.dumps(out, separators=(",", ":")))
+    print(f"{len(out['dienes'])} dienes and the dienophile written to {args.out} "
+          f"({Path(args.out).stat().st_size / 1024:.0f} KB)")
+
+
+if __name__ == "__main__":
+    main()

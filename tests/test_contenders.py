@@ -1,0 +1,57 @@
+"""Which rows the ranking level computes when it does not compute them all (dienes.contenders)."""
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from dienes import contenders as ct
+
+
+def _pairs(n=40, seed=5):
+    rng = np.random.default_rng(seed)
+    return pd.DataFrame({"transition_key": [f"k{i:02d}" for i in range(n)],
+                         "gfn2_barrier_kJmol": rng.uniform(0, 60, n), "interaction_kJmol": rng.normal(-150, 20, n),
+                         "homo_eV": rng.normal(-9.5, 0.4, n), "heavy_atoms": rng.integers(4, 20, n),
+                         "site_class": ["acyclic"] * (n - 3) + ["ring aromatic"] * 3})
+
+
+def test_the_first_sample_spans_the_library_and_starts_at_the_best_screen_row():
+    pairs = _pairs()
+    picked = ct.first_sample(pairs, 8, "gfn2_barrier_kJmol")
+    assert len(set(picked)) == 8 and picked == ct.first_sample(pairs, 8, "gfn2_barrier_kJmol")   # deterministic
+    assert picked[0] == pairs.loc[pairs["gfn2_barrier_kJmol"].idxmin(), "transition_key"]
+    chosen = pairs[pairs["transition_key"].isin(picked)]
+    # a rare class is reached, and the sample covers most of the barrier range (a random 8 of 40
+    # would often miss both; farthest-point sampling reaches the ends by construction of the metric)
+    assert (chosen["site_class"] == "ring aromatic").any()
+    span = np.ptp(chosen["gfn2_barrier_kJmol"]) / np.ptp(pairs["gfn2_barrier_kJmol"])
+    assert span > 0.8
+    assert ct.first_count(40, 0.2, 12) == 12 and ct.first_count(1000, 0.2, 12) == 200 and ct.first_count(5, 0.2, 12) == 5
+
+
+def _table(values, tiers):
+    return pd.DataFrame({"rank": range(1, len(values) + 1), "log10_k_pred": values, "tier": tiers})
+
+
+def test_the_cut_is_the_top_or_tier_one_whichever_reaches_further():
+    assert ct.cut_value(_table([3, 2, 1, 0, -1], [1, 1, 2, 3, 3]), 2) == (2.0, 2)
+    assert ct.cut_value(_table([3, 2.8, 2.6, 0, -1], [1, 1, 1, 2, 3]), 2) == (2.6, 3)
+    assert ct.cut_value(_table([3, 2], [1, 2]), 2)[0] == -math.inf          # too few rows: every row matters
+
+
+def test_a_row_is_a_contender_when_its_optimistic_estimate_reaches_the_cut(config):
+    first, corrected, placing = (config.levels[n] for n in ("dft", "corrected", "gfn2"))
+    sites = pd.DataFrame({"transition_key": ["a", "b", "c", "d", "e"], "id": list("ABCDE"),
+                          "site_status": ["ok"] * 5,
+                          "corrected_log10_k_pred": [1.5, 0.2, -0.5, np.nan, np.nan],
+                          "gfn2_log10_k_pred": [0.0, 0.0, 0.0, 2.0, np.nan]})
+    table = _table([2.0, 1.0, 0.5, 0.0], [1, 2, 2, 3])
+    picked, info = ct.contenders(sites, table, {"x"}, first, corrected, placing, reach_log10=0.5, top=2)
+    # cut = the second place, 1.0: a (1.5 + 0.5) and d (no corrected estimate: nothing rules it out)
+    # are in; b (0.2 + 0.5 = 0.7) and c are out; e has no prediction at all
+    assert picked == ["d", "a"] and info["cut_log10_k"] == 1.0 and info["contenders"] == 2
+    near = {n["id"]: n for n in info["nearest_cut"]}
+    assert near["B"]["optimistic_log10_k"] == pytest.approx(0.7) and not near["B"]["contender"]
+    # computed pairs are never asked for again
+    assert ct.contenders(sites, table, {"a", "d"}, first, corrected, placing, 0.5, 2)[0] == []

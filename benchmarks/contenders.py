@@ -86,7 +86,7 @@ def compare(full, part) -> dict:
     unpriced = p[p["level"] != f["level"].reindex(p.index)]
     inside = [(lo <= v <= hi) for lo, hi, v in zip(unpriced["log10_k_low"], unpriced["log10_k_high"],
                                                    f["log10_k_pred"].reindex(unpriced.index))]
-    return {"ranked": int(len(common)),
+    return {"ranked": len(common),
             "tier1_full": sorted(f.index[f["tier"] == 1]), "tier1_rounds": sorted(p.index[p["tier"] == 1]),
             "tier1_identical": set(f.index[f["tier"] == 1]) == set(p.index[p["tier"] == 1]),
             "top10_overlap": len(set(f.index[:10]) & set(p.index[:10])),

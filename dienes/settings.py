@@ -152,7 +152,7 @@ class Level:
     name: str
     program: str                 # "xtb" (places the atoms), "pyscf" (single points) or "correction"
     options: tuple               # ((key, value), ...) as validated, defaults filled in
-    target: "Level | None" = None   # a correction level's single-point level
+    target: Level | None = None   # a correction level's single-point level
 
     @property
     def corrects(self) -> bool:

@@ -99,7 +99,8 @@ class SCFFailure(RuntimeError):
 
 def _energy(level, numbers, positions, what: str, log: list) -> float:
     r = level.energy(numbers, positions)
-    log.append({"what": what, "energy_kJmol": round(r.energy_kJmol, 4),
+    # a failed SCF may leave no finite energy: logged as null (JSON has no NaN)
+    log.append({"what": what, "energy_kJmol": round(r.energy_kJmol, 4) if math.isfinite(r.energy_kJmol) else None,
                 "dispersion_kJmol": round(r.dispersion_kJmol, 4), "converged": r.converged,
                 "cycles": r.cycles, "wall_s": r.wall_s})
     if not r.converged:

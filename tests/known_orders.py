@@ -14,7 +14,7 @@ hold at this level by 0.2-2.7 kJ/mol (the level underestimates cyclopentadiene's
 validation.md, "The ranking level against coupled-cluster-quality barriers"): order only.
 """
 import json
-from functools import lru_cache
+from functools import cache, lru_cache
 from pathlib import Path
 
 from dienes import settings as cfg
@@ -45,7 +45,7 @@ def dienophile() -> dict:
     return price_dienophile(data()["dienophile"], energies, thermal)
 
 
-@lru_cache(maxsize=None)
+@cache
 def barrier_kJmol(name: str) -> float:
     """The diene's free-energy barrier with maleic anhydride at the shipped level: its best priced site."""
     _, energies, thermal = shipped()

@@ -110,8 +110,8 @@ def test_site_finder_on_random_valid_molecules(parts):
 
 
 @pytest.mark.slow
-def test_corpus_through_the_workflow(tmp_path):
-    _setup(tmp_path, [])
+def test_corpus_through_the_workflow(tmp_path, reference_seed):
+    _setup(tmp_path, [], seed=reference_seed)
     lib = tmp_path / "lib.csv"
     lib.write_bytes((DATA / "bad_inputs.csv").read_bytes())
     before = set(os.listdir(tmp_path))

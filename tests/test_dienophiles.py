@@ -65,3 +65,8 @@ def test_the_run_time_is_estimated_before_the_run(tmp_path):
     again = cli.run_estimate(lib, tmp_path, 2, quick=True)
     assert "50 rows, 10 to compute;" in again and "quick screen" in again
     assert estimate.say(10 * estimate.GFN2_ROW_CORE_S / 2 / estimate.PARALLEL_EFFICIENCY) in again
+    # ranking.rows N: only N of the rows cost a density-functional part (10 new rows here)
+    five = cli.run_estimate(lib, tmp_path, 2, quick=False, rows="5")
+    assert "the 5 best by GFN2-xTB" in five
+    assert estimate.say(10 * (estimate.GFN2_ROW_CORE_S + 0.1 * estimate.DFT_ROW_CORE_S) / 2
+                        / estimate.PARALLEL_EFFICIENCY) in five

@@ -70,22 +70,28 @@ def _numbers(tmp_path):
                "barrier_kJmol"]]
 
 
-@pytest.mark.slow
-def test_kill_9_then_the_same_command_resumes_to_identical_results(tmp_path):
-    clean, killed = tmp_path / "clean", tmp_path / "killed"
-    for d in (clean, killed):
-        d.mkdir()
-        _setup(d, LIB, ranking=FAST)
-    assert _snakemake(clean).returncode == 0
+def _kill_when(workdir: Path, pattern: str, cores: int) -> None:
+    """Start the workflow in `workdir` and kill -9 its whole process group as soon as a results
+    file matching `pattern` appears (or after 5 minutes)."""
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
-           "--directory", str(killed), "--cores", "2"]
+           "--directory", str(workdir), "--cores", str(cores)]
     proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
                             start_new_session=True, env=dict(os.environ, OMP_NUM_THREADS="1"))
     deadline = time.time() + 300
-    while time.time() < deadline and not list((killed / "results" / "structures").glob("*.json")):
-        time.sleep(0.2)
+    while time.time() < deadline and not list((workdir / "results").glob(pattern)):
+        time.sleep(0.05)
     os.killpg(proc.pid, signal.SIGKILL)
     proc.wait()
+
+
+@pytest.mark.slow
+def test_kill_9_then_the_same_command_resumes_to_identical_results(tmp_path, reference_seed):
+    clean, killed = tmp_path / "clean", tmp_path / "killed"
+    for d in (clean, killed):          # the killed run starts from nothing: its first result is its own
+        d.mkdir()
+        _setup(d, LIB, seed=reference_seed if d is clean else None, ranking=FAST)
+    assert _snakemake(clean).returncode == 0
+    _kill_when(killed, "structures/*.json", cores=2)
     assert not (killed / "results" / "ranking.csv").exists()
     before = {p: (p.stat().st_mtime_ns, p.read_bytes()) for p in (killed / "results").rglob("*.json")
               if p.parent.name in ("structures", "transition", "dienophiles")}
@@ -102,8 +108,8 @@ def test_kill_9_then_the_same_command_resumes_to_identical_results(tmp_path):
 
 
 @pytest.mark.slow
-def test_truncated_result_is_detected_and_recomputed(tmp_path):
-    _setup(tmp_path, LIB[:2], ranking=FAST)
+def test_truncated_result_is_detected_and_recomputed(tmp_path, reference_seed):
+    _setup(tmp_path, LIB[:2], seed=reference_seed, ranking=FAST)
     assert _snakemake(tmp_path).returncode == 0
     before = _numbers(tmp_path)
     victim = sorted((tmp_path / "results" / "structures").glob("*.json"))[0]
@@ -122,8 +128,8 @@ def test_truncated_result_is_detected_and_recomputed(tmp_path):
 
 
 @pytest.mark.slow
-def test_a_second_run_on_the_same_directory_is_refused(tmp_path):
-    _setup(tmp_path, LIB, ranking=FAST)
+def test_a_second_run_on_the_same_directory_is_refused(tmp_path, reference_seed):
+    _setup(tmp_path, LIB, seed=reference_seed, ranking=FAST)
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
            "--directory", str(tmp_path), "--cores", "1"]
     first = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
@@ -138,3 +144,78 @@ def test_a_second_run_on_the_same_directory_is_refused(tmp_path):
     _, err = first.communicate(timeout=600)
     assert first.returncode == 0, err[-3000:]
     assert [r["status"] for r in _ranking(tmp_path)] == ["ok"] * 4
+
+
+# the density-functional stage: the shipped functional at a minimal basis (tests/test_workflow.py)
+NOT_CONVERGING = '''
+import dienes.backends as _b
+_energy = _b.DFTLevel.energy
+def _fails_for_one_size(self, numbers, positions_A):
+    # the SCF of every structure of {n} atoms does not converge (a test's stand-in for a hard case)
+    if len(numbers) == {n}:
+        return _b.LevelEnergy(float("nan"), False)
+    return _energy(self, numbers, positions_A)
+_b.DFTLevel.energy = _fails_for_one_size
+'''
+
+
+def _level_results(d):
+    return {p: (p.stat().st_mtime_ns, p.read_bytes()) for p in (d / "results" / "levels").rglob("*.json")}
+
+
+@pytest.mark.slow
+def test_faults_at_the_density_functional_stage(tmp_path, reference_seed):
+    lib = [("K-1", "C=CC=C", ""), ("K-2", "C1=CCCC=C1", "")]
+    clean, killed = tmp_path / "clean", tmp_path / "killed"
+    for d in (clean, killed):
+        d.mkdir()
+        _setup(d, lib, seed=reference_seed if d is clean else None)
+    assert _snakemake(clean).returncode == 0
+    # the GFN2-xTB stage is shared, so the kill falls inside the density-functional stage
+    import shutil
+    for part in ("structures", "transition", "dienophiles"):
+        shutil.copytree(clean / "results" / part, killed / "results" / part)
+    _kill_when(killed, "levels/*/pairs/*.json", cores=1)
+    before = _level_results(killed)
+    assert list((killed / "results" / "levels").glob("*/pairs/*.json")), "the kill came before any single point"
+    assert not (killed / "results" / "ranking.csv").exists()
+    run = _snakemake(killed)
+    assert run.returncode == 0, run.stderr[-3000:]
+    # resumed: what was written is untouched, only the missing pairs were computed, and the ranking
+    # is the uninterrupted run's
+    assert all(p.stat().st_mtime_ns == t and p.read_bytes() == b for p, (t, b) in before.items())
+    pairs_clean = len(list((clean / "results" / "levels").glob("*/pairs/*.json")))
+    assert len(before) < len(_level_results(killed)) and \
+        len(list((killed / "results" / "levels").glob("*/pairs/*.json"))) == pairs_clean
+    pd.testing.assert_frame_equal(_numbers(clean), _numbers(killed))
+
+    # a truncated single-point result: said, moved aside, computed again, the same numbers
+    victim = sorted((killed / "results" / "levels").glob("*/pairs/*.json"))[0]
+    text = victim.read_text()
+    victim.write_text(text[: len(text) // 2])
+    os.utime(victim, (1, 1))
+    run = _snakemake(killed)
+    assert run.returncode == 0, run.stderr[-3000:]
+    assert "computed again" in run.stderr and victim.name in run.stderr
+    assert json.loads(victim.read_text())["sites"] == json.loads(text)["sites"]
+    pd.testing.assert_frame_equal(_numbers(clean), _numbers(killed))
+
+    # an SCF that fails at the level for one row's transition structure (butadiene + maleic
+    # anhydride, the only 19-atom structure here) inside a workflow run, at new level settings so
+    # that every pair is computed again: that row keeps its GFN2-xTB values and says why, every
+    # other row ranks at the level
+    hook = tmp_path / "hook"
+    hook.mkdir()
+    (hook / "sitecustomize.py").write_text(NOT_CONVERGING.replace("{n}", "19"))
+    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=os.pathsep.join(
+        [str(hook)] + [p for p in os.environ.get("PYTHONPATH", "").split(os.pathsep) if p]))
+    run = subprocess.run([sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
+                          "--directory", str(killed), "--cores", "2", "--config", "levels={dft: {grid_level: 2}}"],
+                         capture_output=True, text=True, env=env, timeout=1200)
+    assert run.returncode == 0, run.stderr[-3000:]
+    rows = {r["id"]: r for r in _ranking(killed)}
+    assert rows["K-1"]["level"] == "gfn2" and rows["K-1"]["rank"]
+    assert float(rows["K-1"]["barrier_kJmol"]) == float(rows["K-1"]["gfn2_barrier_kJmol"])
+    assert rows["K-1"]["dft_status"] == "scf_failed" and "SCF did not converge" in rows["K-1"]["message"]
+    assert "ranked at gfn2" in rows["K-1"]["message"]
+    assert rows["K-2"]["level"] == "dft" and rows["K-2"]["dft_status"] == "ok"

@@ -38,8 +38,14 @@ def _setup_library(tmp_path, rows):
         w.writerows(rows)
 
 
-def _setup(tmp_path: Path, library_rows, **config_updates):
+def _setup(tmp_path: Path, library_rows, seed: Path | None = None, **config_updates):
+    """A working directory with the library, the small reference set and the test config; with
+    `seed` (the reference_seed fixture), the reference dienes' GFN2-xTB results already in it."""
     config_updates = dict(config_updates)
+    if seed is not None:
+        import shutil
+        for part in ("structures", "transition", "dienophiles"):
+            shutil.copytree(seed / part, tmp_path / "results" / part, dirs_exist_ok=True)
     (tmp_path / "config").mkdir(exist_ok=True)
     _write_reference(tmp_path / "config" / "reference.csv", REFERENCE_IDS)
     _setup_library(tmp_path, library_rows)
@@ -82,8 +88,8 @@ def _level_files(tmp_path) -> dict:
             for p in (tmp_path / "results" / "levels").rglob("*.json")}
 
 
-def test_tiny_library_end_to_end_and_incremental(tmp_path):
-    _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b"), ("T-3", "C1=CC=C", "c")])
+def test_tiny_library_end_to_end_and_incremental(tmp_path, reference_seed, capsys):
+    _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b"), ("T-3", "C1=CC=C", "c")], seed=reference_seed)
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
     rows = _ranking(tmp_path)
@@ -93,7 +99,7 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     # every reactive row is ranked at the density-functional level, and says so; the GFN2-xTB
     # view (its own model, rank and barrier) stands beside it, fitted by the same code
     model = json.loads((tmp_path / "results" / "model.json").read_text())
-    assert model["ranking_level"] == "dft" and model["ranking_levels"] == ["dft", "gfn2"]
+    assert model["ranking_level"] == "dft" and model["ranking_levels"] == ["dft", "corrected", "gfn2"]
     assert model["levels"]["dft"]["level"] == "B3LYP/STO-3G" and model["levels"]["gfn2"]["level"] == "GFN2-xTB"
     assert model["levels"]["dft"]["base_features"] == ["barrier_kJmol"] and model["levels"]["dft"]["n_reference"] == 5
     # every candidate descriptor is open to every level's fit (none dropped for want of a level's name)
@@ -143,6 +149,7 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     assert run.returncode == 0, run.stderr[-3000:]
     assert jobs_run(run) == Counter(prepare=1, rank=1, torsion_profiles=1, report=1)
     assert json.loads((tmp_path / "results" / "model.json").read_text())["levels"]["dft"]["n_reference"] == 4
+    dft_ma = {r["id"]: (float(r["dft_barrier_kJmol"]), float(r["log10_k_pred"])) for r in _ranking(tmp_path) if r["rank"]}
 
     # other settings of the dft level (Hartree-Fock: no grid, the cheapest): every pair is computed
     # again, no GFN2-xTB work
@@ -173,13 +180,73 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path):
     rows = _ranking(tmp_path)
     with_an = {r["id"]: float(r["gfn2_barrier_kJmol"]) for r in rows if r["gfn2_barrier_kJmol"]}
     assert set(with_an) == set(with_ma) and all(with_an[i] > with_ma[i] + 5.0 for i in with_ma)
+    # and so does the barrier the rows are ranked by: every row reads the single points with the
+    # run's dienophile (its pair file at the level), so every barrier and prediction changes. (At
+    # the minimal basis of these tests the size and even the sign of the change is not physics:
+    # B3LYP/STO-3G puts acrylonitrile's barriers 3-17 kJ/mol below maleic anhydride's.)
+    dft_an = {r["id"]: (float(r["dft_barrier_kJmol"]), float(r["log10_k_pred"])) for r in rows if r["rank"]}
+    assert set(dft_an) == set(dft_ma) and all(r["level"] == "dft" for r in rows if r["rank"])
+    assert all(abs(dft_an[i][0] - dft_ma[i][0]) > 1.0 and dft_an[i][1] != dft_ma[i][1] for i in dft_ma)
+    for r in rows:
+        if r["rank"]:
+            pair = json.loads(next((tmp_path / "results" / "levels").glob(f"dft-*/pairs/{r['transition_key']}.json"))
+                              .read_text())
+            assert pair["dienophile"] == "C=CC#N"
+            assert float(r["dft_barrier_kJmol"]) == pytest.approx(min(
+                s["free_energy_barrier_kJmol"] for s in pair["sites"].values() if s.get("status") == "ok"), abs=1e-6)
     assert all(r["dienophile"] == "C=CC#N" and r["dienophile_in_reference"] == "False" for r in rows if r["rank"])
 
+    # an SDF library with a record RDKit cannot read, and a located saddle that failed its check
+    # (cyclopentadiene's result marked so, as a search that runs out of steps leaves it): every row
+    # reaches ranking.csv in input order with its status and message, the unverified row still ranks
+    from rdkit import Chem
+    blocks = []
+    for rid, smi in (("S-1", "C=CC=C"), ("S-3", "C1=CCC=C1")):
+        mol = Chem.MolFromSmiles(smi)
+        mol.SetProp("_Name", rid)
+        blocks.append(Chem.MolToMolBlock(mol) + "$$$$\n")
+    broken = "S-2\n  broken\n\n  2  1  0  0  0  0  0  0  0  0999 V2000\nthis is not an atom line\nM  END\n$$$$\n"
+    (tmp_path / "lib.sdf").write_text(blocks[0] + broken + blocks[1])
+    cpd = next(p for p in (tmp_path / "results" / "transition").glob("*.json")
+               if json.loads(p.read_text()).get("key", "").startswith(Chem.MolToInchiKey(Chem.MolFromSmiles("C1=CCC=C1")))
+               and json.loads(p.read_text())["dienophile"] == "O=C1OC(=O)C=C1")
+    result = json.loads(cpd.read_text())
+    for site in result["sites"].values():
+        if site.get("status") == "ok":
+            site.update(status="ts_unverified", ts_verified=False,
+                        message="saddle search stopped after 100 steps; barrier from the fixed-bond model structure")
+    cpd.write_text(json.dumps(result))
+    run = _snakemake(tmp_path, "--config", "library=lib.sdf")
+    assert run.returncode == 0, run.stderr[-3000:]
+    rows = _ranking(tmp_path)
+    assert [r["status"] for r in rows] == ["ok", "unreadable_sdf_record", "ts_unverified"]
+    assert rows[1]["message"] == "unreadable SDF record" and rows[1]["rank"] == ""
+    assert rows[0]["rank"] and rows[2]["rank"] and rows[2]["ts_verified"] == "False"
+    assert "saddle search stopped after 100 steps" in rows[2]["message"]
+    assert "saddle not verified" in rows[2]["domain_note"] and rows[2]["in_domain"] == "False"
 
-def test_the_quick_screen_a_shortlist_contenders_and_a_third_level_by_configuration(tmp_path):
+    # `look` on a diene new to the run ((E,E)-2,4-hexadiene) answers what `rank` answers once the
+    # diene is in the library: prediction, both bounds and the multiple of butadiene, as printed
+    from dienes import cli
+    capsys.readouterr()
+    assert cli.main(["look", "C/C=C/C=C/C", "--workdir", str(tmp_path), "--no-profile"]) == 0
+    said = capsys.readouterr().out
+    m = re.search(r"log10 k ([+-][\d.]+) \[([+-][\d.]+), ([+-][\d.]+)\], x(\S+) butadiene; level (\w+)", said)
+    assert m, said[-2000:]
+    _setup_library(tmp_path, [("T-1", "C=CC=C", "a"), ("T-5", "C/C=C/C=C/C", "e")])
+    run = _snakemake(tmp_path)
+    assert run.returncode == 0, run.stderr[-3000:]
+    assert "compute_structures" not in jobs_run(run)        # look's results are the run's
+    new = next(r for r in _ranking(tmp_path) if r["id"] == "T-5")
+    from dienes.outputs import times_text
+    assert [f"{float(new[c]):+.2f}" for c in ("log10_k_pred", "log10_k_low", "log10_k_high")] == list(m.groups()[:3])
+    assert times_text(float(new["times_faster_than_butadiene"])) == m.group(4) and new["level"] == m.group(5)
+
+
+def test_the_quick_screen_a_shortlist_contenders_and_a_third_level_by_configuration(tmp_path, reference_seed):
     # butadiene, cyclopentadiene, chloroprene and 1,3-cyclohexadiene: none of them in this reference set
     _setup(tmp_path, [("T-1", "C=CC=C", "a"), ("T-2", "C1=CCC=C1", "b"), ("T-3", "C=CC(Cl)=C", "c"),
-                      ("T-4", "C1=CCCC=C1", "d")], ranking={"levels": ["gfn2"]})
+                      ("T-4", "C1=CCCC=C1", "d")], seed=reference_seed, ranking={"levels": ["gfn2"]})
     run = _snakemake(tmp_path)
     assert run.returncode == 0, run.stderr[-3000:]
     jobs = jobs_run(run)

@@ -55,3 +55,19 @@ def test_a_row_is_a_contender_when_its_optimistic_estimate_reaches_the_cut(confi
     assert near["B"]["optimistic_log10_k"] == pytest.approx(0.7) and not near["B"]["contender"]
     # computed pairs are never asked for again
     assert ct.contenders(sites, table, {"a", "d"}, first, corrected, placing, 0.5, 2)[0] == []
+
+
+def test_what_was_computed_and_what_it_risked_is_said():
+    from dienes.outputs import computed_text
+    assert computed_text({"computed_rows": {"level": "dft", "rows": "all", "ranked_by_level": {"dft": 46}}}) == ""
+    summary = {"interval": 0.9, "levels": {"dft": {}, "corrected": {"correction": {
+        "loo_mae_kJmol": 5.12, "half_width_kJmol": 11.8}}},
+        "computed_rows": {"level": "dft", "rows": "contenders", "ranked_by_level": {"dft": 40, "corrected": 6},
+                          "rounds": 4, "pairs_computed": 39, "pairs_in_run": 46, "ended": "no contender left",
+                          "cut_log10_k": 0.475, "cut_place": 20,
+                          "nearest_cut": [{"id": "DEMO-08", "contender": False}, {"id": "DEMO-09", "contender": True}]}}
+    text = computed_text(summary)
+    for part in ("dft computed 39 of 46", "4 round(s) (no contender left)", "on corrected: 6",
+                 "mean 5.1 kJ/mol", "within 12 kJ/mol", "log10 k +0.47 (place 20)", "not computed: DEMO-08"):
+        assert part in text, (part, text)
+    assert "DEMO-09" not in text

@@ -85,16 +85,17 @@ def cut_value(table: pd.DataFrame, top: int) -> tuple[float, int]:
     return float(ranked["log10_k_pred"].iloc[place - 1]), place
 
 
-def contenders(sites: pd.DataFrame, table: pd.DataFrame, computed: set[str], first, corrected, placing,
+def contenders(sites: pd.DataFrame, table: pd.DataFrame, computed: set[str], corrected, placing,
                reach_log10: float, top: int) -> tuple[list[str], dict]:
-    """The library pairs not computed at `first` whose optimistic prediction reaches the cut (see
-    the module text), best first, and what the round saw: the cut, its place, the pairs computed,
-    and the nearest pairs on either side of the cut."""
+    """The library pairs not yet computed at the ranking level whose optimistic prediction (the
+    `corrected` level's, raised by `reach_log10`; `placing`'s where the correction has none) reaches
+    the cut (see the module text), best first, and what the round saw: the cut, its place, the
+    reach, and the pairs nearest the cut."""
     from .ranking import col
     cut, place = cut_value(table, top)
     pred_c, pred_g = col(corrected, "log10_k_pred"), col(placing, "log10_k_pred")
     ok = sites[(sites["site_status"] == "ok") & ~sites["transition_key"].isin(computed)] if len(sites) else sites
-    best: dict[str, tuple[float, str]] = {}
+    best: dict[str, tuple] = {}           # pair -> (optimistic value, how, row id, corrected value)
     for key, c, g, rid in zip(ok.get("transition_key", []), ok.get(pred_c, pd.Series(np.nan, index=ok.index)),
                               ok.get(pred_g, pd.Series(np.nan, index=ok.index)), ok.get("id", [])):
         if pd.notna(c):

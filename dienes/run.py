@@ -368,9 +368,8 @@ def level_round(manifest_path, r: int, out_path, results="results") -> dict:
             info = {"note": f"the corrected level could not be fitted ({model['error']}): every row computed"}
         else:
             c = model["correction"]
-            reach = c["half_width_log10"] * c["bound_kJmol"] / c["half_width_kJmol"] if c["half_width_kJmol"] else 0.0
-            stems, info = ct.contenders(sites, table, set(computed_so_far), first, corrected, settings.placing,
-                                        reach, int(opts["top"]))
+            stems, info = ct.contenders(sites, table, set(computed_so_far), corrected, settings.placing,
+                                        c["bound_log10"], int(opts["top"]))
             info["correction"] = {k: c[k] for k in ("terms", "n_sites", "loo_mae_kJmol", "loo_spearman",
                                                     "half_width_kJmol", "bound_kJmol")}
             done = not stems or r + 1 >= int(opts["max_rounds"])
@@ -514,6 +513,7 @@ def rank_tables(manifest: dict, computed, settings: cfg.Settings):
                 continue
             slope = abs(float(target["coefficients"].get("barrier_kJmol", 0.0)))
             info["half_width_log10"] = round(slope * info["half_width_kJmol"], 3)
+            info["bound_log10"] = round(slope * info["bound_kJmol"], 3)
             fit, summary = fits[level.target.name], target | {"name": level.name, "level": level.label(),
                                                               "correction": info}
         else:

@@ -41,20 +41,20 @@ def test_the_cut_is_the_top_or_tier_one_whichever_reaches_further():
 
 
 def test_a_row_is_a_contender_when_its_optimistic_estimate_reaches_the_cut(config):
-    first, corrected, placing = (config.levels[n] for n in ("dft", "corrected", "gfn2"))
+    corrected, placing = config.levels["corrected"], config.levels["gfn2"]
     sites = pd.DataFrame({"transition_key": ["a", "b", "c", "d", "e"], "id": list("ABCDE"),
                           "site_status": ["ok"] * 5,
                           "corrected_log10_k_pred": [1.5, 0.2, -0.5, np.nan, np.nan],
                           "gfn2_log10_k_pred": [0.0, 0.0, 0.0, 2.0, np.nan]})
     table = _table([2.0, 1.0, 0.5, 0.0], [1, 2, 2, 3])
-    picked, info = ct.contenders(sites, table, {"x"}, first, corrected, placing, reach_log10=0.5, top=2)
+    picked, info = ct.contenders(sites, table, {"x"}, corrected, placing, reach_log10=0.5, top=2)
     # cut = the second place, 1.0: a (1.5 + 0.5) and d (no corrected estimate: nothing rules it out)
     # are in; b (0.2 + 0.5 = 0.7) and c are out; e has no prediction at all
     assert picked == ["d", "a"] and info["cut_log10_k"] == 1.0 and info["contenders"] == 2
     near = {n["id"]: n for n in info["nearest_cut"]}
     assert near["B"]["optimistic_log10_k"] == pytest.approx(0.7) and not near["B"]["contender"]
     # computed pairs are never asked for again
-    assert ct.contenders(sites, table, {"a", "d"}, first, corrected, placing, 0.5, 2)[0] == []
+    assert ct.contenders(sites, table, {"a", "d"}, corrected, placing, 0.5, 2)[0] == []
 
 
 def test_what_was_computed_and_what_it_risked_is_said():

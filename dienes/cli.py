@@ -98,10 +98,14 @@ def _rank(args) -> int:
         placing = shipped.placing
         overrides.append(f"levels={{{placing.name}: {{program: xtb, backend: {args.backend}}}}}")
     overrides += condition_overrides(args) + (args.set or [])
-    rows = args.rows
-    if rows is None and not args.quick:
+    rows = "all"
+    if not args.quick:
         from . import settings as cfg
-        rows = cfg.load(configfile, fallback=False).rows
+        shipped = cfg.load(configfile, fallback=False)
+        if args.rows is not None:
+            shipped = shipped | {"ranking": dict(shipped["ranking"]) | {"rows": int(args.rows) if args.rows.isdigit()
+                                                                        else args.rows}}
+        rows = shipped.rows_mode
     print(run_estimate(library, workdir, args.cores, quick=args.quick, rows=rows), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
@@ -128,7 +132,9 @@ def _rank(args) -> int:
 
 
 def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="all") -> str:
-    """One line before the run: rows to compute and the expected wall time (dienes.estimate)."""
+    """One line before the run: rows to compute and the expected wall time (dienes.estimate).
+    `rows`: what ranking.rows means ('all', 'contenders', N), or a function of the library's size
+    that says it (Settings.rows_mode)."""
     from . import estimate
     from .library import read_rows
     try:
@@ -136,7 +142,7 @@ def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="al
     except (OSError, ValueError) as exc:
         return f"dienes: no time estimate ({exc})"
     new, ref_done = estimate.rows_to_compute(smiles, workdir)
-    share, how = estimate.dft_share(rows, len(smiles))
+    share, how = estimate.dft_share(rows(len(smiles)) if callable(rows) else rows, len(smiles))
     wall = estimate.wall_time_s(new, cores, quick, ref_done, share)
     return (f"dienes: {len(smiles)} rows, {new} to compute{'' if ref_done else ' plus the reference set (once)'}"
             f"{'' if quick else how}; expected {estimate.say(wall)} on {cores} core(s)"

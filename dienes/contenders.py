@@ -40,12 +40,13 @@ def _heavy_atoms(smiles: str) -> int:
 def pair_table(sites: pd.DataFrame, base: str) -> pd.DataFrame:
     """One row per library (structure, dienophile) pair with a GFN2-xTB barrier: its lowest-barrier
     site's terms, the size and the site class."""
+    from .ranking import site_class
     ok = sites[(sites["site_status"] == "ok") & sites[base].notna()] if len(sites) else sites
     if not len(ok):
         return pd.DataFrame(columns=["transition_key", base])
     best = ok.sort_values([base, "row"]).drop_duplicates("transition_key").copy()
     best["heavy_atoms"] = best["isomer_smiles"].map(_heavy_atoms)
-    best["site_class"] = [f"{k}{' aromatic' if bool(a) else ''}" for k, a in zip(best["site_kind"], best["aromatic"])]
+    best["site_class"] = [site_class(k, a) for k, a in zip(best["site_kind"], best["aromatic"])]
     return best.reset_index(drop=True)
 
 
@@ -95,22 +96,22 @@ def contenders(sites: pd.DataFrame, table: pd.DataFrame, computed: set[str], cor
     cut, place = cut_value(table, top)
     pred_c, pred_g = col(corrected, "log10_k_pred"), col(placing, "log10_k_pred")
     ok = sites[(sites["site_status"] == "ok") & ~sites["transition_key"].isin(computed)] if len(sites) else sites
-    best: dict[str, tuple] = {}           # pair -> (optimistic value, how, row id, corrected value)
+    best: dict[str, tuple] = {}           # pair -> (optimistic value, row id, corrected value)
     for key, c, g, rid in zip(ok.get("transition_key", []), ok.get(pred_c, pd.Series(np.nan, index=ok.index)),
                               ok.get(pred_g, pd.Series(np.nan, index=ok.index)), ok.get("id", [])):
         if pd.notna(c):
-            value, how = float(c) + reach_log10, "corrected"
+            value = float(c) + reach_log10
         elif pd.notna(g):
-            value, how = math.inf, "no corrected estimate"
+            value = math.inf              # no corrected estimate: nothing rules the row out
         else:
             continue
         if key not in best or value > best[key][0]:
-            best[key] = (value, how, str(rid), float(c) if pd.notna(c) else None)
+            best[key] = (value, str(rid), float(c) if pd.notna(c) else None)
     picked = sorted((k for k, v in best.items() if v[0] >= cut), key=lambda k: (-best[k][0], k))
     near = sorted(best.items(), key=lambda kv: abs(kv[1][0] - cut) if math.isfinite(kv[1][0]) else math.inf)[:5]
     info = {"cut_log10_k": None if not math.isfinite(cut) else round(cut, 3), "cut_place": place,
             "reach_log10": round(reach_log10, 3), "contenders": len(picked),
-            "nearest_cut": [{"id": v[2], "transition_key": k, "corrected_log10_k": None if v[3] is None else round(v[3], 3),
+            "nearest_cut": [{"id": v[1], "transition_key": k, "corrected_log10_k": None if v[2] is None else round(v[2], 3),
                              "optimistic_log10_k": round(v[0], 3) if math.isfinite(v[0]) else None,
                              "contender": k in picked} for k, v in near]}
     return picked, info

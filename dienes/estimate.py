@@ -21,7 +21,6 @@ REFERENCE_ONCE_CORE_S = 223.0 + 890.0   # the reference set, GFN2-xTB + density 
 PARALLEL_EFFICIENCY = 0.96      # measured on the demo: core-seconds / (wall x cores)
 CONTENDERS_SHARE = 1.0          # a contenders run: at most every row (the share it saves depends on the library;
                                 # benchmarks/contenders.py measures it on a finished run)
-AUTO_FROM_ROWS = 150            # config.yaml's ranking.contenders.from_rows
 
 
 def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool]:
@@ -36,17 +35,15 @@ def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool
 
 
 def dft_share(rows, n_rows: int) -> tuple[float, str]:
-    """(share of the rows recomputed at the density-functional level, how it is said) for
-    ranking.rows `rows` on a library of n_rows."""
+    """(share of the rows recomputed at the density-functional level, how it is said) for what
+    ranking.rows means on a library of n_rows ('all', 'contenders' or N: Settings.rows_mode)."""
     rows = str(rows)
-    if rows == "auto":
-        rows = "contenders" if n_rows > AUTO_FROM_ROWS else "all"
     if rows.isdigit():
         share = min(1.0, int(rows) / max(n_rows, 1))
         return share, f", the {min(int(rows), n_rows)} best by GFN2-xTB recomputed at the density-functional level"
     if rows == "contenders":
-        return CONTENDERS_SHARE, (", at most this (only the dienes that could reach the top are recomputed at "
-                                  "the density-functional level; fewer where most lie far below it)")
+        return CONTENDERS_SHARE, (", only the dienes that could reach the top recomputed at the "
+                                  "density-functional level (so the time below is an upper bound)")
     return 1.0, ""
 
 

@@ -223,8 +223,9 @@ def summary_lines(ranking: pd.DataFrame, out_dir, summary: dict | None = None, t
         if n_out:
             lines.append(f"{n_out} ranked row(s) are extrapolations: see in_domain and domain_note in ranking.csv")
         n_other = int((ranking.loc[ranking["rank"].notna(), "level"].astype(str) != main_level).sum())
-        if summary and computed_text(summary):
-            lines.append(computed_text(summary))
+        computed = computed_text(summary) if summary else ""
+        if computed:
+            lines.append(computed)
         elif n_other:
             lines.append(f"{n_other} ranked row(s) are ranked at a later level of ranking.levels (their {main_level} "
                          "value failed or was not computed): see level and message in ranking.csv")

@@ -341,7 +341,8 @@ def level_round(manifest_path, r: int, out_path, results="results") -> dict:
     opts = settings["ranking"]["contenders"]
     earlier = [read_json(layout.level_round(i)) for i in range(r)]
     computed_so_far = list(dict.fromkeys(s for e in earlier for s in e["pairs"]))
-    library = [s for s in manifest["transitions"] if s not in set(_reference_stems(manifest))]
+    done_before, reference = set(computed_so_far), set(_reference_stems(manifest))
+    library = [s for s in manifest["transitions"] if s not in reference]
     info: dict = {}
     if r == 0:
         rest = [lv.name for lv in settings.ranking_levels[1:] if not lv.corrects]
@@ -368,12 +369,12 @@ def level_round(manifest_path, r: int, out_path, results="results") -> dict:
             info = {"note": f"the corrected level could not be fitted ({model['error']}): every row computed"}
         else:
             c = model["correction"]
-            stems, info = ct.contenders(sites, table, set(computed_so_far), corrected, settings.placing,
+            stems, info = ct.contenders(sites, table, done_before, corrected, settings.placing,
                                         c["bound_log10"], int(opts["top"]))
             info["correction"] = {k: c[k] for k in ("terms", "n_sites", "loo_mae_kJmol", "loo_spearman",
                                                     "half_width_kJmol", "bound_kJmol")}
             done = not stems or r + 1 >= int(opts["max_rounds"])
-    new = [s for s in dict.fromkeys(stems) if s in manifest["transitions"] and s not in set(computed_so_far)]
+    new = [s for s in dict.fromkeys(stems) if s in manifest["transitions"] and s not in done_before]
     out = {"round": r, "level": first.name, "lkey": first.key(), "rows": mode, "pairs": new,
            "computed_before": len(computed_so_far), "done": done, **info,
            "batches": level_batches(manifest | {"batches": {"transition": {}}}, first, new, layout)}

@@ -38,6 +38,16 @@ def backend_settings(request, config):
     return config.structure_settings() | {"backend": request.param}
 
 
+def ase_calculator(backend: str):
+    """The GFN2-xTB library's own ASE calculator, an independent route past the project's backend
+    layer (dienes.backends) for checks of it."""
+    if backend == "xtb-python":
+        from xtb.ase.calculator import XTB
+        return XTB(method="GFN2-xTB")
+    from tblite.ase import TBLite
+    return TBLite(method="GFN2-xTB", verbosity=0)
+
+
 @pytest.fixture(scope="session")
 def reference_seed(tmp_path_factory):
     """GFN2-xTB results of the workflow tests' reference dienes and of butadiene with maleic

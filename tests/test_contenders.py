@@ -71,3 +71,23 @@ def test_what_was_computed_and_what_it_risked_is_said():
                  "mean 5.1 kJ/mol", "within 12 kJ/mol", "log10 k +0.47 (place 20)", "not computed: DEMO-08"):
         assert part in text, (part, text)
     assert "DEMO-09" not in text
+
+
+def test_a_row_on_the_corrected_level_carries_the_corrections_error_in_its_interval(config):
+    # the model's half-width and the correction's (both in log10 units) add in quadrature
+    # (independent errors, common practice); the prediction itself is the target level's model
+    from dienes import model as mdl
+    from dienes.ranking import predict_sites
+    rng = np.random.default_rng(2)
+    x = rng.uniform(90, 140, 12)
+    y = -0.06 * (x - 115) + rng.normal(0, 0.3, 12)
+    fit = mdl.fit(x[:, None], y, ["barrier_kJmol"], "ols", 303.15)
+    sites = pd.DataFrame({"site_status": ["ok"] * 3, "corrected_barrier_kJmol": [100.0, 115.0, 130.0],
+                          "site_kind": ["acyclic"] * 3, "aromatic": [False] * 3, "ts_verified": [True] * 3})
+    summary = {"run_dienophile": "C=C", "dienophile_terms": {}, "training_classes": ["acyclic"]}
+    plain = predict_sites(sites, fit, config, summary, "corrected")
+    wide = predict_sites(sites, fit, config, summary | {"correction": {"half_width_log10": 0.8}}, "corrected")
+    assert np.allclose(plain["corrected_log10_k_pred"], wide["corrected_log10_k_pred"])
+    half0 = (plain["corrected_log10_k_high"] - plain["corrected_log10_k_low"]) / 2
+    half1 = (wide["corrected_log10_k_high"] - wide["corrected_log10_k_low"]) / 2
+    assert np.allclose(half1, np.sqrt(half0 ** 2 + 0.8 ** 2))

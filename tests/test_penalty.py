@@ -4,6 +4,8 @@ import pytest
 from dienes.pipeline import compute_structure
 from dienes.units import EV_KJMOL
 
+from .conftest import ase_calculator
+
 pytestmark = pytest.mark.slow
 
 _CACHE = {}
@@ -22,15 +24,6 @@ def site(smiles, settings):
     return r["sites"][0]
 
 
-def _ase_calculator(backend: str):
-    """The GFN2-xTB library's own ASE calculator (not the project's backend layer)."""
-    if backend == "xtb-python":
-        from xtb.ase.calculator import XTB
-        return XTB(method="GFN2-xTB")
-    from tblite.ase import TBLite
-    return TBLite(method="GFN2-xTB", verbosity=0)
-
-
 def test_butadiene_penalty_matches_an_independent_constrained_optimisation(backend_settings):
     # the pipeline's planar s-cis search (conformers, its own optimiser and dihedral restraint)
     # against a route that shares none of its code: RDKit builds butadiene, the GFN2-xTB library's
@@ -46,7 +39,7 @@ def test_butadiene_penalty_matches_an_independent_constrained_optimisation(backe
     mol = Chem.AddHs(Chem.MolFromSmiles("C=CC=C"))
     AllChem.EmbedMolecule(mol, randomSeed=7)
     atoms = Atoms([a.GetSymbol() for a in mol.GetAtoms()], positions=mol.GetConformer().GetPositions())
-    atoms.calc = _ase_calculator(backend_settings["backend"])
+    atoms.calc = ase_calculator(backend_settings["backend"])
     # the atoms on C3's side of the C2-C3 bond move when the dihedral is set
     moving = {2}
     while True:

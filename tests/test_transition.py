@@ -73,7 +73,7 @@ def test_decomposition_against_separate_single_points(located, structure_setting
     from dienes.pipeline import compute_dienophile, compute_structure
     from dienes.units import EV_KJMOL
 
-    from .test_penalty import _ase_calculator
+    from .conftest import ase_calculator
     s = located["bd"]
     res = compute_structure("C=CC=C", structure_settings)
     dph = compute_dienophile("O=C1OC(=O)C=C1", structure_settings)
@@ -81,7 +81,7 @@ def test_decomposition_against_separate_single_points(located, structure_setting
 
     def energy_kJmol(numbers, positions):
         atoms = Atoms(numbers=numbers, positions=positions)
-        atoms.calc = _ase_calculator(structure_settings["backend"])
+        atoms.calc = ase_calculator(structure_settings["backend"])
         return atoms.get_potential_energy() * EV_KJMOL
 
     diene_n, dph_n = res["geometry"]["numbers"], dph["geometry"]["numbers"]

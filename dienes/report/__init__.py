@@ -428,12 +428,13 @@ def try_first(table: pd.DataFrame, model: dict) -> dict:
     bench = model.get("bench", {})
     width = bench.get("tier_width_log10")
     base = ranking_model(model).get("base_dienophile", "the reference dienophile")
+    computed = computed_text(model)
     return {"tiers": [{"number": t, "entries": entries, "more": more}
                       for t, entries, more in tier_lines(table, model)],
             "dienophile": model.get("run_dienophile", ""),
             "level": f"{model.get('ranking_level')} ({ranking_model(model).get('level', '')})" if ranking_model(model) else "",
             "accuracy": accuracy_text(model), "time": time_text(model),
-            "computed": (computed_text(model)[:1].upper() + computed_text(model)[1:] + ".") if computed_text(model) else "",
+            "computed": (computed[:1].upper() + computed[1:] + ".") if computed else "",
             "how": (f"Tiers: walking down the ranking, a new tier starts where a diene lies more than {width:.2f} "
                     "log units (sqrt(2) x the leave-one-out error) below the first diene of its tier; within a "
                     "tier the model cannot tell the dienes apart, so try them in any order." if width else ""),

@@ -79,34 +79,28 @@ def in_rounds() -> bool:
     return manifest()["levels"].get(first, {}).get("rows", "all") != "all"
 
 
-def rounds(upto=None):
-    """The finished rounds of the first level, in order, up to the one that ends them (or
-    round `upto`, exclusive): [(round file, its content)]. Asking for a round not yet written
-    makes Snakemake run its checkpoint and come back."""
-    out = []
+def iter_rounds(upto=None):
+    """The rounds of the first level, in order, up to the one that ends them (or round `upto`,
+    exclusive), as (round file, its content). Lazy: a caller that stops early never asks for a
+    later round, and asking for a round not yet written makes Snakemake run its checkpoint and
+    come back."""
     for r in range(MAX_ROUNDS if upto is None else upto):
         path = checkpoints.level_round.get(round=r).output[0]
-        out.append((path, read_json(path)))
-        if out[-1][1]["done"]:
-            break
-    return out
+        data = read_json(path)
+        yield path, data
+        if data["done"]:
+            return
 
 
 def level_batch(bid: str) -> tuple[str, dict]:
     """(plan file, batch) of one batch of single points: the manifest's, or the round that added
-    it. Rounds are read in order and only up to that round, so a batch never waits for a later
-    round (which waits for it)."""
+    it. Rounds are read only up to that round, so a batch never waits for a later round (which
+    waits for it)."""
     if bid in manifest()["batches"]["level"]:
         return MANIFEST, manifest()["batches"]["level"][bid]
-    r = 0
-    while in_rounds() and r < MAX_ROUNDS:
-        path = checkpoints.level_round.get(round=r).output[0]
-        data = read_json(path)
+    for path, data in iter_rounds() if in_rounds() else ():
         if bid in data["batches"]:
             return path, data["batches"][bid]
-        if data["done"]:
-            break
-        r += 1
     raise ValueError(f"batch {bid} is in no plan of this run")
 
 
@@ -115,7 +109,7 @@ def get_earlier_round_input(wildcards):
     r = int(wildcards.round)
     if r == 0:
         return []
-    path, data = rounds(r)[-1]
+    path, data = list(iter_rounds(r))[-1]
     return [path] + [batch_flag("level", b) for b in data["batches"]]
 
 
@@ -158,6 +152,6 @@ def get_rank_input(wildcards):
     """Everything the ranking reads: the computed batches, and the rounds' files and batches."""
     extra = []
     if in_rounds():
-        for path, data in rounds():
+        for path, data in iter_rounds():
             extra += [path] + [batch_flag("level", b) for b in data["batches"]]
     return get_computed_input(wildcards) + extra

@@ -1,4 +1,5 @@
-"""Measured gas-phase Diels-Alder kinetics as activation enthalpies and free energies.
+"""Measured gas-phase Diels-Alder kinetics as activation enthalpies and free energies, and
+whether a cycloadduct may revert (`reversal`, at the end).
 
 A gas-phase barrier needs no solvent model, so measured gas-phase rate
 parameters are the cleanest outside check of the barriers the ranking rests
@@ -94,3 +95,35 @@ def pair_order_fraction(measured, computed, min_gap: float) -> tuple[int, int]:
             total += 1
             good += (measured[i] - measured[j]) * (computed[i] - computed[j]) > 0
     return good, total
+
+
+# An adduct may revert when its equilibrium constant at the run's temperature (1 mol/L standard
+# state) is below REVERSAL_K_L_PER_MOL: at 0.1 mol/L of both partners about 3 % of them then stay
+# free, and warming by some 80 K (a Diels-Alder reaction loses about 170 J/(mol K) of entropy,
+# common practice) frees about half, so the adduct reverts on heating, in work-up or on storage.
+REVERSAL_K_L_PER_MOL = 1.0e4
+# the ranking level's error for Diels-Alder reaction energies (B3LYP/def2-SVP with D3(BJ)): mean
+# absolute deviation 11.6 kJ/mol from the DARC benchmark on its own geometries (docs/validation.md);
+# a reaction free energy within this of the reversible range is flagged too
+REACTION_ENERGY_MARGIN_KJMOL = 11.6
+
+
+def reversal_limit_kJmol(temperature_K: float) -> float:
+    """The reaction free energy (kJ/mol) above which an adduct is flagged as one that may revert."""
+    return -GAS_CONSTANT_KJMOL_K * temperature_K * math.log(REVERSAL_K_L_PER_MOL) - REACTION_ENERGY_MARGIN_KJMOL
+
+
+def reversal(reaction_free_energy_kJmol: float, temperature_K: float, level: str = "") -> tuple[bool | None, str]:
+    """Whether a cycloadduct may revert (retro-Diels-Alder), from its reaction free energy at
+    temperature_K (1 mol/L): (True, why) above reversal_limit_kJmol, (False, '') below, (None, '')
+    without a value."""
+    dg = float(reaction_free_energy_kJmol)
+    if not math.isfinite(dg):
+        return None, ""
+    if dg <= reversal_limit_kJmol(temperature_K):
+        return False, ""
+    at = f" at {level}" if level else ""
+    return True, (f"the adduct may revert (retro-Diels-Alder) on warming or standing: reaction free energy "
+                  f"{dg:+.0f} kJ/mol{at}, {temperature_K:.0f} K, above the "
+                  f"{reversal_limit_kJmol(temperature_K):.0f} kJ/mol where adducts start to revert "
+                  f"(error about {REACTION_ENERGY_MARGIN_KJMOL:.0f} kJ/mol)")

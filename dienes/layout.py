@@ -6,7 +6,8 @@ the one way every file is written (atomically: a killed job never leaves half a 
     results/dienophiles/<dhash>.json              one dienophile
     results/transition/<key>__<thash>.json        a (structure, dienophile) pair's transition structures
     results/levels/<level>-<hash>/...             single points at a named level:
-        structures/<key>.json, dienophiles/<dhash>.json, pairs/<key>__<thash>.json
+        structures/<key>.json, dienophiles/<dhash>.json, pairs/<key>__<thash>.json,
+        adducts/<key>__<thash>.json (the best site's cycloadduct: reaction free energy)
     results/batches/<stage>/<bid>.json            what one batch job did
     results/rounds/round<r>.json                  ranking.rows N or contenders: the pairs the first
                                                   level computes in round r, and its jobs
@@ -67,6 +68,10 @@ class Layout:
     def level_pair(self, lkey: str, stem="{stem}") -> Path:
         """A (structure, dienophile) pair's barriers at a level."""
         return self.level_dir(lkey) / "pairs" / f"{stem}.json"
+
+    def level_adduct(self, lkey: str, stem="{stem}") -> Path:
+        """The cycloadduct of a pair's best site at a level (its reaction free energy)."""
+        return self.level_dir(lkey) / "adducts" / f"{stem}.json"
 
     def level_structure(self, lkey: str, key="{key}") -> Path:
         """A structure's minima at a level (shared by every dienophile)."""

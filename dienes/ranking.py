@@ -18,6 +18,7 @@ import pandas as pd
 
 from . import model as mdl
 from .chemistry import chemistry_note
+from .kinetics import reversal
 from .orbitals import regio_hint
 
 TS_COLUMNS = ("intrinsic_barrier_kJmol", "distortion_kJmol", "dienophile_distortion_kJmol", "interaction_kJmol",
@@ -43,12 +44,13 @@ def col(level, name: str) -> str:
 class Computed:
     """Everything computed for a run, by file stem: structures by key, transition
     structures by '<key>__<transition hash>', dienophiles by their hash, and each priced
-    level's pair results by level name and stem."""
+    level's pair results and cycloadducts by level name and stem."""
 
     structures: dict
     transitions: dict = field(default_factory=dict)
     dienophiles: dict = field(default_factory=dict)
     levels: dict = field(default_factory=dict)
+    adducts: dict = field(default_factory=dict)     # level name -> stem -> its best site's cycloadduct
 
     def transition(self, key: str, thash: str) -> dict:
         return self.transitions.get(f"{key}__{thash}", {"status": "missing", "sites": {}})
@@ -217,6 +219,9 @@ def record_sites(rec: dict, computed: Computed, settings) -> list[dict]:
                     if "contact_dispersion_kJmol" in row:
                         feats.pop("contact_dispersion_kJmol", None)
                     row.update(feats)
+                    adduct = computed.adducts.get(level.name, {}).get(row["transition_key"], {})
+                    if adduct.get("site") == site["label"] and "reaction_free_energy_kJmol" in adduct:
+                        row[col(level, "reaction_free_energy_kJmol")] = float(adduct["reaction_free_energy_kJmol"])
             else:
                 row.update({"scis_penalty_kJmol": np.nan, "homo_eV": site["homo_eV"],
                             "lumo_eV": site["lumo_eV"], "ts_status": "not_computed"})
@@ -466,6 +471,14 @@ def choose_level(sites: pd.DataFrame, settings, models: dict) -> pd.DataFrame:
             if mask.any():
                 values[mask] = out.loc[mask, col(level, name)]
         out[name] = values.infer_objects() if name in ("in_domain", "domain_note") else values.astype(float)
+    # the reaction free energy where the row's level computed it (a level that places the atoms or
+    # estimates a barrier computes none)
+    values = pd.Series(np.nan, index=out.index, dtype=float)
+    for level in levels:
+        mask = chosen == level.name
+        if mask.any() and col(level, "reaction_free_energy_kJmol") in out:
+            values[mask] = out.loc[mask, col(level, "reaction_free_energy_kJmol")].astype(float)
+    out["reaction_free_energy_kJmol"] = values
     by_name = {lv.name: lv for lv in levels}
     out["level"] = chosen.where(chosen != "", None)
     out["barrier_kind"] = [by_name[c].barrier if c else None for c in chosen]
@@ -498,11 +511,12 @@ RANKING_COLUMNS = ["rank", "id", "name", "level", "in_domain", "smiles", "status
                    "gap_inverse_eV", "demand", "regio_hint", "regio_ts", "orientation_gap_kJmol",
                    "face_preference", "face_gap_kJmol", "intrinsic_barrier_kJmol", "distortion_kJmol",
                    "dienophile_distortion_kJmol", "interaction_kJmol", "reaction_energy_kJmol",
+                   "reaction_free_energy_kJmol", "may_revert", "reversal_note",
                    "model_barrier_kJmol", "contact_dispersion_kJmol", "ts_imag_cm1", "ts_verified", "best_site",
                    "site_kind", "aromatic", "n_sites", "dihedral_min_deg", "isomer_smiles", "n_isomers",
                    "structure_key", "transition_key", "n_gradients", "converged", "dienophile", "row"]
 ROW_COLUMNS = ("rank", "id", "name", "smiles", "status", "message", "best_site", "n_sites", "n_isomers",
-               "structure_key", "n_gradients", "converged", "row")
+               "structure_key", "n_gradients", "converged", "row", "may_revert", "reversal_note")
 BEST_SITE_COLUMNS = [c for c in RANKING_COLUMNS if c not in ROW_COLUMNS]
 
 
@@ -526,7 +540,9 @@ def _level_view(ok: pd.DataFrame, level) -> dict:
         first = ok.iloc[0] if len(ok) else {}
         return {col(level, c): first.get(col(level, c), np.nan) for c in ("status", "message")}
     best = ok.loc[ok[pred].idxmax()]
-    return {col(level, c): best.get(col(level, c), np.nan) for c in LEVEL_VIEW_COLUMNS if c != "rank"}
+    # a computing level's cycloadduct too (a level that estimates or places the atoms has none)
+    extra = [c for c in ("reaction_free_energy_kJmol",) if col(level, c) in best.index]
+    return {col(level, c): best.get(col(level, c), np.nan) for c in LEVEL_VIEW_COLUMNS + tuple(extra) if c != "rank"}
 
 
 def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame, settings) -> pd.DataFrame:
@@ -563,6 +579,11 @@ def rank_table(records: list[dict], computed: Computed, sites: pd.DataFrame, set
     for c in columns:
         if c not in table:
             table[c] = np.nan
+    labels = {lv.name: lv.label() for lv in settings.ranking_levels}
+    flags = [reversal(dg, float(settings["temperature_K"]), labels.get(lv, "")) if isinstance(lv, str)
+             else (None, "") for dg, lv in zip(table["reaction_free_energy_kJmol"], table["level"])]
+    table["may_revert"] = pd.Series([f for f, _ in flags], index=table.index, dtype=object)
+    table["reversal_note"] = [n for _, n in flags]
     ranked = table["status"].isin(RANKED_STATUSES) & table["log10_k_pred"].notna()
     table["rank"] = _order(table, "log10_k_pred", ranked)
     for level in settings.ranking_levels:

@@ -298,7 +298,7 @@ def level_batches(manifest: dict, level: cfg.Level, stems: list[str], layout: La
     """Jobs for the pairs whose result at `level` is absent: {batch id: {members, level, lkey,
     needs (the transition batches of this run that compute them), dienophiles}}."""
     lkey = level.key()
-    missing = [s for s in stems if not layout.level_pair(lkey, s).is_file()]
+    missing = [s for s in stems if not _level_pair_done(layout, lkey, s)]
     producer = {stem: bid for bid, b in manifest["batches"]["transition"].items() for stem in b["members"]}
     size = max(1, math.ceil(len(missing) / AUTO_LEVEL_JOBS))
     out = {}
@@ -412,11 +412,17 @@ def _level_by_key(settings: cfg.Settings, lkey: str) -> cfg.Level:
     raise ValueError(f"no level of this run's ranking has the results folder {lkey}")
 
 
+def _level_pair_done(layout: Layout, lkey: str, stem: str) -> bool:
+    return layout.level_pair(lkey, stem).is_file() and layout.level_adduct(lkey, stem).is_file()
+
+
 def level_pair(settings: cfg.Settings, manifest: dict, stem: str, level: cfg.Level, energies,
                layout: Layout) -> dict:
-    """Barriers of one (structure, dienophile) pair at `level`, written to its result file. The
-    structure's minima are computed once per level and kept for every other dienophile."""
-    from .singlepoints import price_pair, price_structure, sites_to_price
+    """Barriers of one (structure, dienophile) pair at `level`, then the cycloadduct of its best
+    site, each written to its result file (a pair computed before the cycloadduct was part of the
+    job keeps its barriers). The structure's minima are computed once per level and kept for
+    every other dienophile."""
+    from .singlepoints import price_adduct, price_pair, price_structure, sites_to_price
     lkey = level.key()
     task = manifest["transitions"][stem]
     transition = read_json(layout.transition(stem))
@@ -429,9 +435,18 @@ def level_pair(settings: cfg.Settings, manifest: dict, stem: str, level: cfg.Lev
             priced = price_structure(read_json(layout.structure(task["key"])), energies, thermal_source(settings))
             write_json(priced, spath)
     dph = read_json(layout.level_dienophile(lkey, task["dhash"]))
-    r = price_pair(priced, transition, dph, energies, thermal_source(settings)) | {"stem": stem}
-    write_json(r, layout.level_pair(lkey, stem))
-    return r
+    spent = 0.0
+    try:
+        r = read_json(layout.level_pair(lkey, stem))
+    except (FileNotFoundError, ValueError):
+        r = price_pair(priced, transition, dph, energies, thermal_source(settings)) | {"stem": stem}
+        write_json(r, layout.level_pair(lkey, stem))
+        spent += r.get("wall_time_s", 0.0)
+    adduct = price_adduct(read_json(layout.structure(task["key"])) if priced else {}, priced, transition,
+                          read_json(layout.dienophile(task["dhash"])), dph, r, energies,
+                          thermal_source(settings)) | {"stem": stem}
+    write_json(adduct, layout.level_adduct(lkey, stem))
+    return r | {"wall_time_s": round(spent + adduct.get("wall_time_s", 0.0), 2)}
 
 
 def compute_level_pairs(manifest_path, plan_path, bid: str, out_path, results="results", threads: int = 1) -> dict:
@@ -446,7 +461,7 @@ def compute_level_pairs(manifest_path, plan_path, bid: str, out_path, results="r
     energies = level.energy_backend(threads)
     done = []
     for stem in batch["members"]:
-        if layout.level_pair(batch["lkey"], stem).is_file():
+        if _level_pair_done(layout, batch["lkey"], stem):
             done.append({"stem": stem, "computed": False})
             continue
         r = level_pair(settings, manifest, stem, level, energies, layout)
@@ -483,7 +498,7 @@ def load_computed(manifest: dict, settings: cfg.Settings, layout: Layout, pairs=
         d = _load(layout.dienophile(dhash), "dienophile")
         if "lumo_eV" in d:
             dienophiles[dhash] = d
-    levels = {}
+    levels, adducts = {}, {}
     for level in settings.priced_levels:
         if level.name != settings.ranking_levels[0].name or first_level_rows(manifest, settings) == "all":
             stems = list(manifest["transitions"])
@@ -492,7 +507,9 @@ def load_computed(manifest: dict, settings: cfg.Settings, layout: Layout, pairs=
         else:
             stems = list(dict.fromkeys(s for r in round_chain(layout) for s in r["pairs"]))
         levels[level.name] = {s: _load(layout.level_pair(level.key(), s), f"{level.name} result") for s in stems}
-    return Computed(structures, transitions, dienophiles, levels)
+        adducts[level.name] = {s: _load(layout.level_adduct(level.key(), s), f"{level.name} cycloadduct")
+                               for s in stems}
+    return Computed(structures, transitions, dienophiles, levels, adducts)
 
 
 def rank_tables(manifest: dict, computed, settings: cfg.Settings):

@@ -25,12 +25,15 @@ Only the single points the ranking needs are computed:
 - the dienophile's minimum, once per run (one result per dienophile and level);
 - the transition structure of every reactive site whose GFN2-xTB barrier lies
   within SITE_WINDOW_KJMOL of the site's best (the better level may prefer
-  another site of a polyene or an acene).
+  another site of a polyene or an acene);
+- the cycloadduct of the pair's best site (:func:`price_adduct`): its reaction free
+  energy says whether the adduct may revert (:func:`dienes.kinetics.reversal`), which no
+  GFN2-xTB number can (GFN2-xTB puts the maleic anhydride adducts of furan and
+  cyclopentadiene 50-100 kJ/mol below the DARC benchmark's energies, docs/validation.md).
 
-Not priced: the planar s-cis structure (the s-cis penalty column stays at
-GFN2-xTB, named so; the barrier from the global minimum already contains the
-penalty) and the cycloadduct (the reaction energy column stays at GFN2-xTB).
-Each would cost a single point per diene without changing the ranking.
+Not computed: the planar s-cis structure (the s-cis penalty column stays at GFN2-xTB,
+named so; the barrier from the global minimum already contains the penalty): it would
+cost a single point per diene without changing the ranking.
 
 Barriers (kJ/mol) at the level, per priced site:
 
@@ -244,3 +247,79 @@ def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict
         out |= {"status": "scf_failed", "message": "; ".join(s["message"] for s in out["sites"].values())}
     return out | {"minimum_index": structure_priced["minimum_index"],
                   "wall_time_s": round(time.perf_counter() - t0, 2)}
+
+
+def best_site(pair_priced: dict) -> str | None:
+    """The site that ranks a pair at its level: the lowest free-energy barrier among its
+    computed sites (the electronic barrier where no site has a free energy)."""
+    ok = {label: s for label, s in pair_priced.get("sites", {}).items() if s.get("status") == "ok"}
+    for key in ("free_energy_barrier_kJmol", "electronic_barrier_kJmol"):
+        have = {label: s[key] for label, s in ok.items() if s.get(key) is not None}
+        if have:
+            return min(have, key=have.get)
+    return None
+
+
+def reaction_dispersion(level):
+    """The London dispersion a level's reaction energies need added: D3(BJ) with the level's own
+    functional (a geometry-only term, no SCF), or None where the level has dispersion of its own
+    (a dispersion keyword, or GFN2-xTB). Measured: on the DARC benchmark's own geometries (Diels-Alder
+    reaction energies, estimated CCSD(T)/CBS), B3LYP/def2-SVP alone under-binds furan and
+    cyclopentadiene + maleic anhydride by 43-54 kJ/mol and with D3(BJ) by 3-17 (docs/validation.md)."""
+    d = level.as_dict()
+    method = str(d.get("method") or "")
+    if d.get("dispersion") or not method or method.startswith("gfn"):
+        return None
+    return lambda numbers, positions_A: d3_dispersion_kJmol(numbers, positions_A, functional=method)
+
+
+def price_adduct(structure: dict, structure_priced: dict, transition: dict, dienophile: dict,
+                 dienophile_priced: dict, pair_priced: dict, level, thermal: Thermal | None = None) -> dict:
+    """The cycloadduct of the pair's best site at `level` (the GFN2-xTB structure the saddle's
+    downhill path reached): the reaction energy E(adduct) - E(diene) - E(dienophile) and, with
+    `thermal`, the reaction free energy at the run's temperature (1 mol/L; the diene as the
+    ensemble of its computed minima, as for the barrier), each with the level's dispersion
+    (`reaction_dispersion`; a reaction energy, unlike a barrier between similar structures, is
+    wrong by tens of kJ/mol without it). `structure` and `dienophile` are the GFN2-xTB results
+    (their geometries). One single point and one GFN2-xTB Hessian per pair; what the reaction
+    free energy says about reversal is :func:`dienes.kinetics.reversal`."""
+    t0 = time.perf_counter()
+    log: list = []
+    out = _result(level, key=transition.get("key", ""), dienophile=transition.get("dienophile", ""),
+                  single_points=log)
+    label = best_site(pair_priced)
+    site = transition.get("sites", {}).get(label or "", {})
+    if label is None:
+        why = pair_priced.get("message") or "no site computed at this level"
+        return out | {"status": "nothing_to_price", "message": f"no cycloadduct to compute ({why})"}
+    if not site.get("adduct_A"):
+        return out | {"status": "nothing_to_price", "site": label,
+                      "message": f"site {label} has no GFN2-xTB cycloadduct (its saddle was not verified, so no "
+                                 "downhill path reached one)"}
+    out |= {"site": label, "adduct_converged": bool(site.get("adduct_converged", False))}
+    numbers, adduct = transition["numbers"], site["adduct_A"]
+    try:
+        e_add = _energy(level, numbers, adduct, f"cycloadduct of site {label}", log)
+    except SCFFailure as exc:
+        return out | {"status": "scf_failed", "message": str(exc), "wall_time_s": round(time.perf_counter() - t0, 2)}
+    geo = structure["geometry"]
+    minima_A = (geo.get("low_minima_A") or [geo["minimum_A"]])[:len(structure_priced["minima_kJmol"])]
+    dgeo = dienophile["geometry"]
+    disp = reaction_dispersion(level)
+    d_add = d_dph = 0.0
+    d_min = [0.0] * len(minima_A)
+    if disp is not None:
+        d_add, d_dph = disp(numbers, adduct), disp(dgeo["numbers"], dgeo["minimum_A"])
+        d_min = [disp(geo["numbers"], pos) for pos in minima_A]
+        out["dispersion"] = "D3(BJ) added"
+    e_minima = [e + d for e, d in zip(structure_priced["minima_kJmol"], d_min)]
+    out["reaction_energy_kJmol"] = round(e_add + d_add - min(e_minima) - dienophile_priced["energy_kJmol"] - d_dph, 3)
+    if thermal is not None and "g_corr_kJmol" in structure_priced and "g_corr_kJmol" in dienophile_priced:
+        g_add = thermal_correction_kJmol(numbers, adduct, thermal)
+        g_diene = ensemble_free_energy_kJmol([e + g for e, g in zip(e_minima, structure_priced["g_corr_kJmol"])],
+                                             thermal.temperature_K)
+        out |= {"g_corr_adduct_kJmol": round(g_add, 3), "temperature_K": thermal.temperature_K,
+                "reaction_free_energy_kJmol": round(
+                    e_add + d_add + g_add - g_diene
+                    - dienophile_priced["energy_kJmol"] - d_dph - dienophile_priced["g_corr_kJmol"], 3)}
+    return out | {"wall_time_s": round(time.perf_counter() - t0, 2)}

@@ -18,7 +18,13 @@ from functools import cache, lru_cache
 from pathlib import Path
 
 from dienes import settings as cfg
-from dienes.singlepoints import Thermal, price_dienophile, price_pair, price_structure
+from dienes.singlepoints import (
+    Thermal,
+    price_adduct,
+    price_dienophile,
+    price_pair,
+    price_structure,
+)
 
 from .conftest import REPO
 
@@ -46,15 +52,31 @@ def dienophile() -> dict:
 
 
 @cache
-def barrier_kJmol(name: str) -> float:
-    """The diene's free-energy barrier with maleic anhydride at the shipped level: its best priced site."""
+def priced(name: str) -> tuple[dict, dict]:
+    """The diene's minima and its pair with maleic anhydride at the shipped level."""
     _, energies, thermal = shipped()
     d = data()["dienes"][name]
     minima = price_structure(d["structure"], energies, thermal)
-    pair = price_pair(minima, d["transition"], dienophile(), energies, thermal)
+    return minima, price_pair(minima, d["transition"], dienophile(), energies, thermal)
+
+
+@cache
+def barrier_kJmol(name: str) -> float:
+    """The diene's free-energy barrier with maleic anhydride at the shipped level: its best priced site."""
+    pair = priced(name)[1]
     values = [s["free_energy_barrier_kJmol"] for s in pair["sites"].values() if s.get("status") == "ok"]
     assert values, (name, pair.get("message"))
     return min(values)
+
+
+@cache
+def adduct(name: str) -> dict:
+    """The cycloadduct of the diene's best site with maleic anhydride at the shipped level."""
+    _, energies, thermal = shipped()
+    d = data()["dienes"][name]
+    minima, pair = priced(name)
+    return price_adduct(d["structure"], minima, d["transition"], data()["dienophile"], dienophile(), pair,
+                        energies, thermal)
 
 
 def stored_settings_match() -> str:

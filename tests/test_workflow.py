@@ -110,6 +110,9 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path, reference_seed, capsy
         assert float(r["barrier_kJmol"]) == float(r["dft_barrier_kJmol"]) != float(r["gfn2_barrier_kJmol"])
         assert float(r["log10_k_pred"]) == float(r["dft_log10_k_pred"]) and r["gfn2_rank"]
         assert float(r["electronic_barrier_kJmol"]) != float(r["barrier_kJmol"])
+        # the cycloadduct computed at the row's level beside its barrier, and read as a flag
+        assert float(r["reaction_free_energy_kJmol"]) == float(r["dft_reaction_free_energy_kJmol"])
+        assert r["may_revert"] in ("True", "False") and bool(r["reversal_note"]) == (r["may_revert"] == "True")
     # cyclopentadiene reacts faster than butadiene (about 1000-fold with maleic anhydride; Sauer &
     # Sustmann 1980, from memory; common practice); neither is in the fitted reference set here
     assert rows[1]["rank"] == "1" and rows[0]["rank"] == "2"
@@ -140,7 +143,7 @@ def test_tiny_library_end_to_end_and_incremental(tmp_path, reference_seed, capsy
     assert all(p.stat().st_mtime_ns == mtimes[p.name] for p in after if p.name in mtimes)
     level_after = _level_files(tmp_path)
     assert all(level_after[p] == t for p, t in level_before.items())       # computed files untouched
-    assert len(level_after) == len(level_before) + 2                       # the new pair and its diene
+    assert len(level_after) == len(level_before) + 3       # the new pair, its cycloadduct and its diene
     assert [r["id"] for r in _ranking(tmp_path)] == ["T-1", "T-2", "T-3", "T-4"]
 
     # a new reference file of known dienes: the models are refitted, nothing is computed

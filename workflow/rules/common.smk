@@ -29,7 +29,8 @@ if workflow.is_main_process:
     # manifest that counts a missing result as done is dropped, so both are computed again
     moved = runlock.quarantine_invalid(sorted(Path("results").glob("structures/*.json"))
                                        + sorted(Path("results").glob("transition/*.json"))
-                                       + sorted(Path("results").glob("levels/*/pairs/*.json")))
+                                       + sorted(Path("results").glob("levels/*/pairs/*.json"))
+                                       + sorted(Path("results").glob("levels/*/adducts/*.json")))
     _stale = dienes_run.stale_manifest(MANIFEST)
     if dienes_run.drop_stale_batches() or moved or _stale:
         Path(MANIFEST).unlink(missing_ok=True)

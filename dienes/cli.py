@@ -230,7 +230,7 @@ def _look(args) -> int:
                 if t.get("status") == "ok":
                     print(f"    site {label:<12} barrier {t['barrier_kJmol']:7.1f} kJ/mol from the diene's "
                           f"minimum ({t['approach']}; imaginary mode {t['ts_imag_cm1']:.0f} cm-1; "
-                          f"reaction energy {t['reaction_energy_kJmol']:.0f} kJ/mol)")
+                          f"reaction energy {t['reaction_energy_kJmol']:.0f} kJ/mol, tens of kJ/mol too low)")
                 else:
                     print(f"    site {label:<12} {t.get('status')}: {t.get('message', '')}")
         if best is None:
@@ -313,6 +313,9 @@ def _look_as_rank(args, dph_smiles: str) -> None:
         print(f"  {above} of that run's {int(run['rank'].notna().sum())} ranked rows are ahead of it")
     except (OSError, KeyError, ValueError):
         pass
+    if pd.notna(r.get("reaction_free_energy_kJmol")):
+        print(f"  reaction free energy {r['reaction_free_energy_kJmol']:+.0f} kJ/mol at level {r['level']}"
+              + (f": {r['reversal_note']}" if is_true(r.get("may_revert")) else ": the adduct should not revert"))
     if r.get("message"):
         print(f"  note: {r['message']}")
 

@@ -197,7 +197,7 @@ def columns(others: list[str]) -> list[dict]:
     spec += [(f"barrier {name} kJ/mol", True, True) for name in others]
     spec += [("s-cis penalty kJ/mol (GFN2-xTB)", True, False), ("HOMO eV", True, True), ("LUMO eV", True, True),
              ("regio (orbitals)", False, True), ("regio (saddle), GFN2-xTB", False, True),
-             ("endo/exo, GFN2-xTB", False, True), ("reaction energy kJ/mol, GFN2-xTB", True, True), ("site", True, False), ("message", False, False)]
+             ("endo/exo, GFN2-xTB", False, True), ("reaction free energy kJ/mol", True, True), ("site", True, False), ("message", False, False)]
     glossary = text()["columns"]
 
     def help_for(header):
@@ -244,7 +244,8 @@ def table_rows(table: pd.DataFrame, others: list[str]) -> list[dict]:
             "penalty": _num(r["scis_penalty_kJmol"], "{:.1f}"),
             "homo": _num(r["homo_eV"]), "lumo": _num(r["lumo_eV"]),
             "regio_hint": _text(r.get("regio_hint")), "regio_ts": regio_ts, "face": face,
-            "reaction_energy": _num(r.get("reaction_energy_kJmol"), "{:.0f}"),
+            "reaction_energy": _num(r.get("reaction_free_energy_kJmol"), "{:.0f}") if ranked else "",
+            "reversal": _text(r.get("reversal_note")) if ranked else "",
             "kind": kind, "site": _text(r.get("best_site")), "message": _text(r["message"]),
             "klass": kind + (" aromatic" if "aromatic" in domain_note else ""),
             "css": ("ok" if ranked else "notok") + (" extrap" if domain_key == "out" else ""),
@@ -413,6 +414,8 @@ def tier_lines(table: pd.DataFrame, model: dict, tiers: int = 2) -> list[tuple[i
                 flags.append("estimated, not recomputed" if lv.get("correction") else f"at {r.get('level')}")
             if r.get("status") == "ts_unverified":
                 flags.append("saddle not verified")
+            if is_true(r.get("may_revert")):
+                flags.append("adduct may revert")
             hl = hours_text(r.get("half_life_h"))
             smiles = _text(r.get("isomer_smiles")) or _text(r.get("smiles"))
             entries.append({"id": _text(r["id"]), "name": _text(r.get("name")),

@@ -17,7 +17,7 @@ from dienes.backends import BackendError, Molecule
 from dienes.pipeline import compute_structure
 
 from .conftest import REPO
-from .test_workflow import _ranking, _setup, _snakemake
+from .test_workflow import _ranking, _setup, _setup_library, _snakemake
 
 
 class _FlakySession:
@@ -158,6 +158,18 @@ def _fails_for_one_size(self, numbers, positions_A):
 _b.DFTLevel.energy = _fails_for_one_size
 '''
 
+# the standardisation of one row raises inside the workflow's prepare job (a stand-in for an RDKit
+# failure no valid SMILES is known to trigger)
+RAISES_FOR_ONE_ROW = '''
+import dienes.library as _lib
+_prepare = _lib._prepare
+def _raises_for_one_row(row, rid, smiles, extra, limits):
+    if rid == "{rid}":
+        raise ValueError("stand-in for an RDKit failure")
+    return _prepare(row, rid, smiles, extra, limits)
+_lib._prepare = _raises_for_one_row
+'''
+
 
 def _level_results(d):
     return {p: (p.stat().st_mtime_ns, p.read_bytes()) for p in (d / "results" / "levels").rglob("*.json")}
@@ -203,10 +215,12 @@ def test_faults_at_the_density_functional_stage(tmp_path, reference_seed):
     # an SCF that fails at the level for one row's transition structure (butadiene + maleic
     # anhydride, the only 19-atom structure here) inside a workflow run, at new level settings so
     # that every pair is computed again: that row keeps its GFN2-xTB values and says why, every
-    # other row ranks at the level
+    # other row ranks at the level. A third row, added now, fails in prepare (processing_error)
     hook = tmp_path / "hook"
     hook.mkdir()
-    (hook / "sitecustomize.py").write_text(NOT_CONVERGING.replace("{n}", "19"))
+    (hook / "sitecustomize.py").write_text(NOT_CONVERGING.replace("{n}", "19")
+                                           + RAISES_FOR_ONE_ROW.replace("{rid}", "K-3"))
+    _setup_library(killed, lib + [("K-3", "C=CC(C)=C", "")])
     env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=os.pathsep.join(
         [str(hook)] + [p for p in os.environ.get("PYTHONPATH", "").split(os.pathsep) if p]))
     run = subprocess.run([sys.executable, "-m", "snakemake", "--snakefile", str(Path(REPO) / "Snakefile"),
@@ -219,3 +233,5 @@ def test_faults_at_the_density_functional_stage(tmp_path, reference_seed):
     assert rows["K-1"]["dft_status"] == "scf_failed" and "SCF did not converge" in rows["K-1"]["message"]
     assert "ranked at gfn2" in rows["K-1"]["message"]
     assert rows["K-2"]["level"] == "dft" and rows["K-2"]["dft_status"] == "ok"
+    assert rows["K-3"]["status"] == "processing_error" and not rows["K-3"]["rank"]
+    assert rows["K-3"]["message"].startswith("RDKit could not process this structure (ValueError: stand-in")

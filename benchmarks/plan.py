@@ -3,7 +3,7 @@
     python benchmarks/plan.py [--results results] [--wall-s 2700 --cores-used 2]
 
 Reads the per-structure wall times every result file records (GFN2-xTB structure and
-transition-structure searches; refined single points) of a finished run, splits them into
+transition-structure searches; refined single points and cycloadducts) of a finished run, splits them into
 the library rows' cost and the one-off cost of the reference set (computed once, then reused
 by every later run in the same directory), and prints a markdown table of the expected wall
 time: (one-off + rows x cost per row) / cores / efficiency. The efficiency is measured from
@@ -40,7 +40,8 @@ def costs(results: Path) -> dict:
     for k in lib_keys | ref_keys:
         w_fast = wall(results / "structures" / f"{k}.json") + sum(
             wall(p) for p in (results / "transition").glob(f"{k}__*.json"))
-        w_ref = sum(wall(p) for p in (results / "levels").glob(f"*/pairs/{k}__*.json")) + sum(
+        w_ref = sum(wall(p) for part in ("pairs", "adducts")
+                    for p in (results / "levels").glob(f"*/{part}/{k}__*.json")) + sum(
             wall(p) for p in (results / "levels").glob(f"*/structures/{k}.json"))
         for side in ("lib",) * (k in lib_keys) + ("ref",) * (k in ref_keys) + ("all",):
             fast[side] += w_fast

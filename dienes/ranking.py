@@ -28,7 +28,9 @@ RANKED_STATUSES = ("ok", "ts_unverified")
 # a level's prediction for a site, as <level>_<name>
 PREDICTION_COLUMNS = ("log10_k_pred", "log10_k_low", "log10_k_high", "leverage", "in_domain", "domain_note")
 # what ranks a row, unprefixed: the values of the level named in its `level` column
-ROW_LEVEL_COLUMNS = PREDICTION_COLUMNS + ("barrier_kJmol", "electronic_barrier_kJmol")
+# (the reaction free energy only where the row's level computed it: a level that places the atoms
+# or estimates a barrier computes none)
+ROW_LEVEL_COLUMNS = PREDICTION_COLUMNS + ("barrier_kJmol", "electronic_barrier_kJmol", "reaction_free_energy_kJmol")
 # each ranking level's view of a row, as <level>_<name> in ranking.csv
 LEVEL_VIEW_COLUMNS = ("rank", "log10_k_pred", "log10_k_low", "log10_k_high", "in_domain", "barrier_kJmol",
                       "electronic_barrier_kJmol", "status", "message")
@@ -457,7 +459,8 @@ def choose_level(sites: pd.DataFrame, settings, models: dict) -> pd.DataFrame:
     """One level per site: the first ranking level with a prediction for it, named in
     `level` (`level_method` says how that level computes its barrier) and, where an earlier
     level gave none, why in `level_note`. The chosen level's values go to the unprefixed
-    columns log10_k_pred, log10_k_low, ..., barrier_kJmol, electronic_barrier_kJmol."""
+    columns log10_k_pred, log10_k_low, ..., barrier_kJmol, electronic_barrier_kJmol,
+    reaction_free_energy_kJmol."""
     out = sites.copy()
     levels = settings.ranking_levels
     chosen = pd.Series("", index=out.index, dtype=object)
@@ -468,17 +471,9 @@ def choose_level(sites: pd.DataFrame, settings, models: dict) -> pd.DataFrame:
         values = pd.Series(np.nan, index=out.index, dtype=object)
         for level in levels:
             mask = chosen == level.name
-            if mask.any():
+            if mask.any() and col(level, name) in out:
                 values[mask] = out.loc[mask, col(level, name)]
         out[name] = values.infer_objects() if name in ("in_domain", "domain_note") else values.astype(float)
-    # the reaction free energy where the row's level computed it (a level that places the atoms or
-    # estimates a barrier computes none)
-    values = pd.Series(np.nan, index=out.index, dtype=float)
-    for level in levels:
-        mask = chosen == level.name
-        if mask.any() and col(level, "reaction_free_energy_kJmol") in out:
-            values[mask] = out.loc[mask, col(level, "reaction_free_energy_kJmol")].astype(float)
-    out["reaction_free_energy_kJmol"] = values
     by_name = {lv.name: lv for lv in levels}
     out["level"] = chosen.where(chosen != "", None)
     out["barrier_kind"] = [by_name[c].barrier if c else None for c in chosen]

@@ -444,7 +444,7 @@ def level_pair(settings: cfg.Settings, manifest: dict, stem: str, level: cfg.Lev
         spent += r.get("wall_time_s", 0.0)
     adduct = price_adduct(read_json(layout.structure(task["key"])) if priced else {}, priced, transition,
                           read_json(layout.dienophile(task["dhash"])), dph, r, energies,
-                          thermal_source(settings)) | {"stem": stem}
+                          thermal_source(settings), level.barrier) | {"stem": stem}
     write_json(adduct, layout.level_adduct(lkey, stem))
     return r | {"wall_time_s": round(spent + adduct.get("wall_time_s", 0.0), 2)}
 

@@ -249,11 +249,11 @@ def price_pair(structure_priced: dict, transition: dict, dienophile_priced: dict
                   "wall_time_s": round(time.perf_counter() - t0, 2)}
 
 
-def best_site(pair_priced: dict) -> str | None:
-    """The site that ranks a pair at its level: the lowest free-energy barrier among its
-    computed sites (the electronic barrier where no site has a free energy)."""
+def best_site(pair_priced: dict, barrier: str = "free_energy") -> str | None:
+    """The site with the lowest barrier of a pair at its level, by the level's barrier kind
+    ('free_energy' or 'electronic'; the electronic barrier where no site has a free energy)."""
     ok = {label: s for label, s in pair_priced.get("sites", {}).items() if s.get("status") == "ok"}
-    for key in ("free_energy_barrier_kJmol", "electronic_barrier_kJmol"):
+    for key in dict.fromkeys((f"{barrier}_barrier_kJmol", "electronic_barrier_kJmol")):
         have = {label: s[key] for label, s in ok.items() if s.get(key) is not None}
         if have:
             return min(have, key=have.get)
@@ -274,8 +274,10 @@ def reaction_dispersion(level):
 
 
 def price_adduct(structure: dict, structure_priced: dict, transition: dict, dienophile: dict,
-                 dienophile_priced: dict, pair_priced: dict, level, thermal: Thermal | None = None) -> dict:
-    """The cycloadduct of the pair's best site at `level` (the GFN2-xTB structure the saddle's
+                 dienophile_priced: dict, pair_priced: dict, level, thermal: Thermal | None = None,
+                 barrier: str = "free_energy") -> dict:
+    """The cycloadduct of the pair's best site at `level` (`best_site` by the level's `barrier`
+    kind; the GFN2-xTB structure the saddle's
     downhill path reached): the reaction energy E(adduct) - E(diene) - E(dienophile) and, with
     `thermal`, the reaction free energy at the run's temperature (1 mol/L; the diene as the
     ensemble of its computed minima, as for the barrier), each with the level's dispersion
@@ -287,7 +289,7 @@ def price_adduct(structure: dict, structure_priced: dict, transition: dict, dien
     log: list = []
     out = _result(level, key=transition.get("key", ""), dienophile=transition.get("dienophile", ""),
                   single_points=log)
-    label = best_site(pair_priced)
+    label = best_site(pair_priced, barrier)
     site = transition.get("sites", {}).get(label or "", {})
     if label is None:
         why = pair_priced.get("message") or "no site computed at this level"

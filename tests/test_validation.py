@@ -59,6 +59,27 @@ def test_document_matches_the_code():
         validation.REFINED_HEADER.strip().splitlines()[0])[0])
 
 
+def test_refined_table_matches_the_code():
+    # the table a chemist reads for the ranking level: the shipped level, the code's checks with their
+    # references, sources and tolerances, a verdict that follows from the observed value it prints,
+    # and (two single points) the observed s-cis penalty recomputed; the butadiene - cyclopentadiene
+    # row is recomputed by tests/test_known_orders.py on its shipped structures, the
+    # cyclohexadiene + ethylene row and the scan's barrier top (a saddle search and 37 single points)
+    # only by hand (python -m dienes.validation --refined)
+    level = cfg.load(validation.CONFIG_PATH, fallback=False).priced_levels[0]
+    label, rows = validation.refined_table()
+    assert label == level.label(), "docs/validation.md: refined table of another level; rerun --refined"
+    checks = validation.level_checks(level)
+    assert set(rows) == {c.name for c in checks}, "refined table is stale: python -m dienes.validation --refined"
+    for c in checks:
+        name, reference, source, observed, tolerance, why, _, verdict = rows[c.name]
+        assert (reference, source, tolerance, why) == (
+            f"{validation._fmt(c.reference)} {c.unit}", c.source, c.tolerance_text(), c.why), c.name
+        assert verdict == validation._verdict(c, float(observed)) != "NO", (c.name, observed, verdict)
+    scis = next(c for c in checks if "s-cis above s-trans" in c.name)
+    assert float(rows[scis.name][3]) == pytest.approx(scis.observe({}), abs=0.02), scis.name
+
+
 def test_regenerating_keeps_the_hand_written_sections():
     # the generated block is replaced, everything outside it kept word for word
     old = (validation.TITLE + validation.BEGIN_MARK + "\nold table\n" + validation.END_MARK

@@ -3,6 +3,7 @@
 docs/validation.md's known orders with maleic anhydride, and the dienophile's result.
 
     python benchmarks/known_orders_data.py [--cache DIR] [--out tests/data/known_orders.json]
+                                           [--dienophile SMILES --dienes NAME ...]
 
 Computes them with the shipped config's GFN2-xTB settings (in-process, the workflow's own steps),
 reusing any result already in --cache (a results folder of a run with the same settings, e.g. the
@@ -38,17 +39,20 @@ def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--cache", help="a results folder to reuse and fill (default: a temporary one)")
     ap.add_argument("--out", default=str(REPO / "tests" / "data" / "known_orders.json"))
+    ap.add_argument("--dienophile", default=DIENOPHILE, help="another dienophile (benchmarks/dienophile_swap.py)")
+    ap.add_argument("--dienes", nargs="+", help="names of DIENES to compute (default: all)")
     args = ap.parse_args()
+    dienes = {n: DIENES[n] for n in args.dienes} if args.dienes else DIENES
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         cache = Path(args.cache) if args.cache else tmp / "results"
         lib, ref = tmp / "known.csv", tmp / "reference.csv"
         with open(lib, "w", newline="") as fh:
-            csv.writer(fh).writerows([("id", "smiles")] + list(DIENES.items()))
+            csv.writer(fh).writerows([("id", "smiles")] + list(dienes.items()))
         with open(ref, "w", newline="") as fh:       # prepare wants a reference file: one row, not fitted here
             csv.writer(fh).writerows([("id", "smiles", "log10_k"), ("bd", "C=CC=C", "0")])
         shipped = cfg.load(REPO / "config" / "config.yaml")
-        settings = shipped | {"library": str(lib), "reference": str(ref), "dienophile": DIENOPHILE,
+        settings = shipped | {"library": str(lib), "reference": str(ref), "dienophile": args.dienophile,
                               "ranking": {"levels": [shipped.placing.name]}}
         manifest_path = tmp / "manifest.json"
         manifest = run.prepare(settings, manifest_path, results=cache)

@@ -6,7 +6,9 @@ figures it prints are for people, not for a timed test.
 The reference search is stored (tests/data/conformer_reference.json, written by
 `python benchmarks/conformer_protocol.py --quick --cache tests/data/conformer_reference.json`):
 its entries are keyed by the GFN2-xTB settings' hash, so after a change to the settings the
-benchmark computes the reference again instead of comparing with a stale one."""
+benchmark computes the reference again instead of comparing with a stale one. The science version is
+left out of the key on purpose (a new protocol is compared with the same reference): after a change
+to how a penalty is defined, rewrite the file with the command above."""
 import os
 import re
 import shutil

@@ -11,8 +11,9 @@ so. So the ranking level computes, in rounds:
   class, starting from the row GFN2-xTB puts first;
 - round k >= 1: the corrected level (dienes.correction) is fitted on everything computed so far
   and every row is ranked, each at the first level with a prediction for it. The cut is the
-  prediction of the row at place max(top, rows in tier 1). A row not yet computed is a contender
-  when its optimistic prediction, its corrected estimate raised by the correction's own error at
+  lower of the prediction at place `top` and the lower edge of tier 1 (the first row's
+  prediction less the tier width), so a row that could reach the top or tier 1 is above it.
+  A row not yet computed is a contender when its optimistic prediction, its corrected estimate raised by the correction's own error at
   ranking.contenders.coverage (in log10 units through the model's barrier slope), reaches the cut;
   the contenders are computed and the next round ranks again;
 - the rounds end when a round finds no contender (or at ranking.contenders.max_rounds).
@@ -75,25 +76,27 @@ def first_count(n_pairs: int, share: float, minimum: int) -> int:
     return min(n_pairs, max(minimum, math.ceil(share * n_pairs)))
 
 
-def cut_value(table: pd.DataFrame, top: int) -> tuple[float, int]:
-    """The prediction a row must reach to matter: that of the row at place max(top, rows in
-    tier 1) of the ranking (-inf where fewer rows are ranked). Returns (value, place)."""
+def cut_value(table: pd.DataFrame, top: int, tier_width_log10: float | None = None) -> tuple[float, int]:
+    """The prediction a row must reach to matter: the lower of that of the row at place `top` and
+    the lower edge of tier 1 (the first row's prediction less the tier width: a row above it joins
+    tier 1, dienes.ranking.bench_view); -inf where no more than `top` rows are ranked (every row
+    could reach the top). Returns (value, place): place is where that value falls in the ranking."""
     ranked = table[table["rank"].notna()].sort_values("rank")
-    tier1 = int((ranked["tier"] == 1).sum()) if "tier" in ranked else 0
-    place = max(top, tier1)
-    if len(ranked) <= place:
-        return -math.inf, place
-    return float(ranked["log10_k_pred"].iloc[place - 1]), place
+    values = ranked["log10_k_pred"].astype(float).to_numpy()
+    cut = float(values[top - 1]) if len(values) > top else -math.inf
+    if len(values) and tier_width_log10 is not None and math.isfinite(float(tier_width_log10)):
+        cut = min(cut, float(values[0]) - float(tier_width_log10))
+    return cut, int((values >= cut).sum())
 
 
 def contenders(sites: pd.DataFrame, table: pd.DataFrame, computed: set[str], corrected, placing,
-               reach_log10: float, top: int) -> tuple[list[str], dict]:
+               reach_log10: float, top: int, tier_width_log10: float | None = None) -> tuple[list[str], dict]:
     """The library pairs not yet computed at the ranking level whose optimistic prediction (the
     `corrected` level's, raised by `reach_log10`; `placing`'s where the correction has none) reaches
     the cut (see the module text), best first, and what the round saw: the cut, its place, the
     reach, and the pairs nearest the cut."""
     from .ranking import col
-    cut, place = cut_value(table, top)
+    cut, place = cut_value(table, top, tier_width_log10)
     pred_c, pred_g = col(corrected, "log10_k_pred"), col(placing, "log10_k_pred")
     ok = sites[(sites["site_status"] == "ok") & ~sites["transition_key"].isin(computed)] if len(sites) else sites
     best: dict[str, tuple] = {}           # pair -> (optimistic value, row id, corrected value)

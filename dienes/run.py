@@ -370,7 +370,8 @@ def level_round(manifest_path, r: int, out_path, results="results") -> dict:
         else:
             c = model["correction"]
             stems, info = ct.contenders(sites, table, done_before, corrected, settings.placing,
-                                        c["bound_log10"], int(opts["top"]))
+                                        c["bound_log10"], int(opts["top"]),
+                                        summary.get("bench", {}).get("tier_width_log10"))
             info["correction"] = {k: c[k] for k in ("terms", "n_sites", "loo_mae_kJmol", "loo_spearman",
                                                     "half_width_kJmol", "bound_kJmol")}
             done = not stems or r + 1 >= int(opts["max_rounds"])

@@ -35,8 +35,13 @@ def _table(values, tiers):
 
 
 def test_the_cut_is_the_top_or_tier_one_whichever_reaches_further():
+    # tier 1 holds every row within the tier width of the first (dienes.ranking.bench_view): a
+    # row not yet computed could join it by reaching the first row's prediction less the width,
+    # which may lie below the last row tier 1 holds now
     assert ct.cut_value(_table([3, 2, 1, 0, -1], [1, 1, 2, 3, 3]), 2) == (2.0, 2)
-    assert ct.cut_value(_table([3, 2.8, 2.6, 0, -1], [1, 1, 1, 2, 3]), 2) == (2.6, 3)
+    assert ct.cut_value(_table([3, 2, 1, 0, -1], [1, 2, 3, 4, 5]), 2, 0.5) == (2.0, 2)    # the top reaches further
+    assert ct.cut_value(_table([3, 2.8, 2.6, 0, -1], [1, 1, 1, 2, 3]), 2, 0.5) == (2.5, 3)
+    assert ct.cut_value(_table([3, 2.9, 0, -1], [1, 1, 2, 3]), 1, 0.5) == (2.5, 2)        # 2.6 would join tier 1
     assert ct.cut_value(_table([3, 2], [1, 2]), 2)[0] == -math.inf          # too few rows: every row matters
 
 

@@ -4,7 +4,9 @@ tests/data/known_orders.json holds the GFN2-xTB stage of each diene with maleic 
 (benchmarks/known_orders_data.py writes it, never by hand); the tests recompute every single point
 at the shipped density-functional settings (config.yaml's ranking level: B3LYP/def2-SVP, density
 fitting, grid 1), with the GFN2-xTB thermal corrections at the shipped temperature, and compare
-free-energy barriers, the barrier the default ranking rests on.
+free-energy barriers, the barrier the default ranking rests on. tests/data/gas_phase_pairs.json holds
+the same for the measured gas-phase pairs of tests/test_gas_kinetics.py (each with its own dienophile;
+`--gas-phase`), priced there for electronic barriers.
 
 Margins: a measured or bench difference in rate, converted at the shipped temperature
 (RT ln 10 = 5.7 kJ/mol per factor of 10) and halved, because the fitted slope of the model is
@@ -80,10 +82,34 @@ def adduct(name: str) -> dict:
 
 
 def stored_settings_match() -> str:
-    """'' when the stored GFN2-xTB stage was computed with the shipped settings, else what to do."""
+    """'' when the stored GFN2-xTB stages (this file's and the gas-phase pairs') were computed with
+    the shipped settings, else what to do."""
     settings = shipped()[0]
-    stored = data()["structure_settings"]
-    if stored != settings.structure_settings() or data()["transition_state"] != dict(settings["transition_state"]):
-        return ("tests/data/known_orders.json was computed with other GFN2-xTB settings than the shipped "
-                "ones: run python benchmarks/known_orders_data.py")
+    for stored, path, option in ((data(), DATA, ""), (gas_data(), GAS_DATA, " --gas-phase")):
+        if (stored["structure_settings"] != settings.structure_settings()
+                or stored["transition_state"] != dict(settings["transition_state"])):
+            return (f"{path.relative_to(REPO)} was computed with other GFN2-xTB settings than the shipped "
+                    f"ones: run python benchmarks/known_orders_data.py{option}")
     return ""
+
+
+# ------------------------------------------------------------------ gas-phase pairs
+GAS_DATA = Path(REPO) / "tests" / "data" / "gas_phase_pairs.json"
+
+
+@lru_cache(maxsize=1)
+def gas_data() -> dict:
+    return json.loads(GAS_DATA.read_text())
+
+
+@cache
+def electronic_barrier_kJmol(diene: str, dienophile_smiles: str) -> float:
+    """A gas-phase pair's electronic barrier at the shipped level (its best priced site) on its
+    stored GFN2-xTB stage (tests/data/gas_phase_pairs.json; `diene` by name)."""
+    _, energies, _ = shipped()
+    pair = next(p for p in gas_data()["pairs"] if p["diene"] == diene and p["dienophile_smiles"] == dienophile_smiles)
+    out = price_pair(price_structure(pair["structure"], energies), pair["transition"],
+                     price_dienophile(pair["dienophile"], energies), energies)
+    values = [s["electronic_barrier_kJmol"] for s in out["sites"].values() if s.get("status") == "ok"]
+    assert values, (diene, dienophile_smiles, out.get("message"))
+    return min(values)

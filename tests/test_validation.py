@@ -63,9 +63,9 @@ def test_refined_table_matches_the_code():
     # the table a chemist reads for the ranking level: the shipped level, the code's checks with their
     # references, sources and tolerances, a verdict that follows from the observed value it prints,
     # and (two single points) the observed s-cis penalty recomputed; the butadiene - cyclopentadiene
-    # row is recomputed by tests/test_known_orders.py on its shipped structures, the
-    # cyclohexadiene + ethylene row and the scan's barrier top (a saddle search and 37 single points)
-    # only by hand (python -m dienes.validation --refined)
+    # row is recomputed by tests/test_known_orders.py and the cyclohexadiene + ethylene row by
+    # tests/test_gas_kinetics.py, each on stored structures; the scan's barrier top (37 single
+    # points) only by hand (python -m dienes.validation --refined)
     level = cfg.load(validation.CONFIG_PATH, fallback=False).priced_levels[0]
     label, rows = validation.refined_table()
     assert label == level.label(), "docs/validation.md: refined table of another level; rerun --refined"

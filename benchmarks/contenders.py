@@ -1,17 +1,17 @@
 """Computing only the contenders against computing every row, on a finished run's results.
 
     python benchmarks/contenders.py --results RUN/results [--config RUN/config/config.yaml]
-                                    [--library LIB.csv] [--top 20] [--out table.json]
+                                    [--library LIB.csv] [--top 20] [--cores 2] [--out table.json]
 
 The run must have computed every row at the first ranking level (ranking.rows all). The rounds
-(dienes.contenders) are replayed in a scratch folder that sees the run's GFN2-xTB results and,
-at the first level, only what the rounds ask for: each pair a round asks for is copied from the
-run instead of computed, and charged its recorded single-point time (the diene's minima the first
-time that diene is asked for, the pair's transition structures, the dienophile once). The full
-ranking is the same code with every pair. Prints the cost ratio (single-point core-seconds),
-tier-1 membership, top-10 overlap, Spearman over all ranked rows, the largest rank change inside
-the top 20, the rounds, and how often a row ranked on the corrected level has its full-ranking
-prediction inside its interval. Computes nothing new.
+(dienes.contenders) are replayed in a scratch folder that sees the run's GFN2-xTB results and, at
+the first level, only what the rounds ask for: each pair a round asks for is copied from the run
+instead of computed, and charged its recorded single-point time (the diene's minima the first time
+that diene is asked for, the pair's transition structures, the dienophile once). The full ranking
+is the same code with every pair. Prints the cost ratio (single-point core-seconds), an estimated
+wall time on --cores cores, tier-1 membership, top-10 overlap, Spearman over all ranked rows, the
+largest rank change inside the top 20, the rounds, and how often a row ranked on the corrected
+level has its full-ranking prediction inside its interval. Computes nothing new.
 """
 
 from __future__ import annotations
@@ -37,24 +37,38 @@ def _cost(path: Path) -> float:
         return 0.0
 
 
+def makespan(seconds: list[float], cores: int) -> float:
+    """Wall time of independent jobs on `cores` cores, longest first, each to the least loaded core."""
+    load = [0.0] * max(1, cores)
+    for t in sorted(seconds, reverse=True):
+        load[load.index(min(load))] += t
+    return max(load)
+
+
 class Replay:
-    """Stands in for the single points: copies a result from the finished run and charges its time."""
+    """Stands in for the single points: copies a result from the finished run and charges its time
+    (by round: `jobs[r]` lists the seconds of each pair round r asked for, its diene's minima included)."""
 
     def __init__(self, source: Layout, scratch: Layout):
         self.source, self.scratch, self.seconds, self.pairs = source, scratch, 0.0, 0
+        self.jobs: dict[int, list[float]] = {}
+        self.serial = 0.0                 # the dienophile, before any pair
 
     def pair(self, settings, manifest, stem, level, energies, layout):
         lkey = level.key()
         task = manifest["transitions"][stem]
         s_src, s_dst = self.source.level_structure(lkey, task["key"]), layout.level_structure(lkey, task["key"])
+        job = 0.0
         if s_src.is_file() and not s_dst.is_file():
             s_dst.parent.mkdir(parents=True, exist_ok=True)
             shutil.copy(s_src, s_dst)
-            self.seconds += _cost(s_src)
+            job += _cost(s_src)
         src = self.source.level_pair(lkey, stem)
         r = read_json(src)
         write_json(r, layout.level_pair(lkey, stem))
-        self.seconds += _cost(src)
+        job += _cost(src)
+        self.seconds += job
+        self.jobs.setdefault(len(list(Path(layout.root, "rounds").glob("round*.json"))) - 1, []).append(job)
         self.pairs += 1
         return r
 
@@ -62,6 +76,7 @@ class Replay:
         src = self.source.level_dienophile(lkey, dhash)
         write_json(read_json(src), out_path)
         self.seconds += _cost(src)
+        self.serial += _cost(src)
         return read_json(src)
 
 
@@ -103,6 +118,7 @@ def main():
     ap.add_argument("--config", help="its config (default: the settings its manifest recorded)")
     ap.add_argument("--library", help="rank this library instead (its rows must be in the run)")
     ap.add_argument("--top", type=int, help="ranking.contenders.top")
+    ap.add_argument("--cores", type=int, default=2, help="cores for the wall-time estimate (default 2)")
     ap.add_argument("--out", help="write the figures as JSON here")
     args = ap.parse_args()
     source = Path(args.results)
@@ -117,11 +133,17 @@ def main():
         tmp = Path(tmp)
         manifest = run.prepare(full_settings, tmp / "full.json", results=source)
         full = run.rank_tables(manifest, run.load_computed(manifest, full_settings, Layout(source)), full_settings)
-        all_cost = sum(_cost(Layout(source).level_pair(lv.key(), s)) for lv in full_settings.priced_levels[:1]
-                       for s in manifest["transitions"])
-        first = full_settings.priced_levels[0]
-        all_cost += sum(_cost(Layout(source).level_structure(first.key(), k)) for k in manifest["structures"])
-        all_cost += sum(_cost(Layout(source).level_dienophile(first.key(), d)) for d in manifest["dienophiles"])
+        first, src = full_settings.priced_levels[0], Layout(source)
+        # every pair a job, charged its diene's minima the first time that diene comes
+        seen, all_jobs = set(), []
+        for s, task in manifest["transitions"].items():
+            job = _cost(src.level_pair(first.key(), s))
+            if task["key"] not in seen:
+                seen.add(task["key"])
+                job += _cost(src.level_structure(first.key(), task["key"]))
+            all_jobs.append(job)
+        all_serial = sum(_cost(src.level_dienophile(first.key(), d)) for d in manifest["dienophiles"])
+        all_cost = sum(all_jobs) + all_serial
         scratch = _scratch(source, tmp / "results")
         replay = Replay(Layout(source), scratch)
         run.level_pair, run.level_dienophile = replay.pair, replay.dienophile
@@ -139,6 +161,12 @@ def main():
            "correction_last": chain[-1].get("correction") if len(chain) > 1 else None,
            "single_point_core_s_all": round(all_cost, 1), "single_point_core_s_rounds": round(replay.seconds, 1),
            "cost_ratio": round(all_cost / replay.seconds, 2) if replay.seconds else None,
+           # estimated wall time of the single points on --cores cores: the dienophile first, then the
+           # pairs longest first; the rounds one after another
+           "single_point_wall_s_all": round(all_serial + makespan(all_jobs, args.cores), 1),
+           "single_point_wall_s_rounds": round(replay.serial + sum(makespan(j, args.cores)
+                                                                   for j in replay.jobs.values()), 1),
+           "pairs_per_round_charged": {r: len(j) for r, j in sorted(replay.jobs.items())},
            **compare(full[0], part[0])}
     print(json.dumps(out, indent=1))
     if args.out:

@@ -13,9 +13,10 @@ so. So the ranking level computes, in rounds:
   and every row is ranked, each at the first level with a prediction for it. The cut is the
   lower of the prediction at place `top` and the lower edge of tier 1 (the first row's
   prediction less the tier width), so a row that could reach the top or tier 1 is above it.
-  A row not yet computed is a contender when its optimistic prediction, its corrected estimate raised by the correction's own error at
-  ranking.contenders.coverage (in log10 units through the model's barrier slope), reaches the cut;
-  the contenders are computed and the next round ranks again;
+  A row not yet computed is a contender when its optimistic prediction, its corrected estimate
+  raised by the correction's own error at ranking.contenders.coverage (in log10 units through the
+  model's barrier slope), reaches the cut; the contenders are computed and the next round ranks
+  again;
 - the rounds end when a round finds no contender (or at ranking.contenders.max_rounds).
 
 Rows the corrected level cannot estimate (a GFN2-xTB term missing) are contenders whenever they

@@ -4,14 +4,16 @@
                                     [--library LIB.csv] [--top 20] [--cores 2] [--out table.json]
 
 The run must have computed every row at the first ranking level (ranking.rows all). The rounds
-(dienes.contenders) are replayed in a scratch folder that sees the run's GFN2-xTB results and, at
-the first level, only what the rounds ask for: each pair a round asks for is copied from the run
-instead of computed, and charged its recorded single-point time (the diene's minima the first time
-that diene is asked for, the pair's transition structures, the dienophile once). The full ranking
-is the same code with every pair. Prints the cost ratio (single-point core-seconds), an estimated
-wall time on --cores cores, tier-1 membership, top-10 overlap, Spearman over all ranked rows, the
-largest rank change inside the top 20, the rounds, and how often a row ranked on the corrected
-level has its full-ranking prediction inside its interval. Computes nothing new.
+(dienes.contenders) are replayed in a scratch folder that sees the run's GFN2-xTB results, the
+other levels' single points and, at the first level, only what the rounds ask for: each pair a
+round asks for is copied from the run instead of computed, and charged its recorded single-point
+time (the diene's minima the first time that diene is asked for, the pair's transition structures
+and cycloadduct, the dienophile once). A level the rounds compute for every row (the base of a
+correction) is charged in full to the rounds; the baseline computes the first level alone. The
+full ranking is the same code with every pair. Prints the cost ratio (single-point core-seconds),
+an estimated wall time on --cores cores, tier-1 membership, top-10 overlap, Spearman over all
+ranked rows, the largest rank change inside the top 20, the rounds, and how often a row ranked on
+the corrected level has its full-ranking prediction inside its interval. Computes nothing new.
 """
 
 from __future__ import annotations
@@ -35,6 +37,21 @@ def _cost(path: Path) -> float:
         return float(read_json(path).get("wall_time_s") or 0.0)
     except (FileNotFoundError, ValueError):
         return 0.0
+
+
+def level_jobs(src: Layout, lkey: str, manifest: dict, stems=None) -> list[float]:
+    """Recorded seconds of each pair at one level, a job each: the pair's single points and its
+    cycloadduct's (where the run computed one), plus its diene's minima the first time that diene
+    comes."""
+    seen, jobs = set(), []
+    for s in manifest["transitions"] if stems is None else stems:
+        key = manifest["transitions"][s]["key"]
+        job = _cost(src.level_pair(lkey, s)) + _cost(src.level_adduct(lkey, s))
+        if key not in seen:
+            seen.add(key)
+            job += _cost(src.level_structure(lkey, key))
+        jobs.append(job)
+    return jobs
 
 
 def makespan(seconds: list[float], cores: int) -> float:
@@ -66,7 +83,7 @@ class Replay:
         src = self.source.level_pair(lkey, stem)
         r = read_json(src)
         write_json(r, layout.level_pair(lkey, stem))
-        job += _cost(src)
+        job += _cost(src) + _cost(self.source.level_adduct(lkey, stem))
         self.seconds += job
         self.jobs.setdefault(len(list(Path(layout.root, "rounds").glob("round*.json"))) - 1, []).append(job)
         self.pairs += 1
@@ -80,11 +97,17 @@ class Replay:
         return read_json(src)
 
 
-def _scratch(source: Path, root: Path) -> Layout:
-    """A results folder that shares the run's GFN2-xTB results and has no single points."""
+def _scratch(source: Path, root: Path, first_lkey: str) -> Layout:
+    """A results folder that shares the run's GFN2-xTB results and the other levels' single points
+    (a level computed for every row, e.g. the base of a correction), and has none at the first
+    ranking level."""
     root.mkdir(parents=True)
     for part in ("structures", "transition", "dienophiles"):
         (root / part).symlink_to((source / part).resolve())
+    (root / "levels").mkdir()
+    for folder in (source / "levels").glob("*"):
+        if folder.name != first_lkey:
+            (root / "levels" / folder.name).symlink_to(folder.resolve())
     return Layout(root)
 
 
@@ -134,17 +157,14 @@ def main():
         manifest = run.prepare(full_settings, tmp / "full.json", results=source)
         full = run.rank_tables(manifest, run.load_computed(manifest, full_settings, Layout(source)), full_settings)
         first, src = full_settings.priced_levels[0], Layout(source)
-        # every pair a job, charged its diene's minima the first time that diene comes
-        seen, all_jobs = set(), []
-        for s, task in manifest["transitions"].items():
-            job = _cost(src.level_pair(first.key(), s))
-            if task["key"] not in seen:
-                seen.add(task["key"])
-                job += _cost(src.level_structure(first.key(), task["key"]))
-            all_jobs.append(job)
+        all_jobs = level_jobs(src, first.key(), manifest)
         all_serial = sum(_cost(src.level_dienophile(first.key(), d)) for d in manifest["dienophiles"])
         all_cost = sum(all_jobs) + all_serial
-        scratch = _scratch(source, tmp / "results")
+        # the rounds' other single-point levels (a correction's base) compute every row, before round 0
+        base_jobs = [j for lv in part_settings.priced_levels[1:] for j in level_jobs(src, lv.key(), manifest)]
+        base_serial = sum(_cost(src.level_dienophile(lv.key(), d)) for lv in part_settings.priced_levels[1:]
+                          for d in manifest["dienophiles"])
+        scratch = _scratch(source, tmp / "results", first.key())
         replay = Replay(Layout(source), scratch)
         run.level_pair, run.level_dienophile = replay.pair, replay.dienophile
         mpath = tmp / "results" / "manifest.json"
@@ -159,13 +179,16 @@ def main():
            "pairs_per_round": [len(r["pairs"]) for r in chain],
            "cut_per_round": [r.get("cut_log10_k") for r in chain],
            "correction_last": chain[-1].get("correction") if len(chain) > 1 else None,
-           "single_point_core_s_all": round(all_cost, 1), "single_point_core_s_rounds": round(replay.seconds, 1),
-           "cost_ratio": round(all_cost / replay.seconds, 2) if replay.seconds else None,
-           # estimated wall time of the single points on --cores cores: the dienophile first, then the
-           # pairs longest first; the rounds one after another
+           "single_point_core_s_all": round(all_cost, 1),
+           "single_point_core_s_rounds": round(replay.seconds + sum(base_jobs) + base_serial, 1),
+           "of_which_base_level_core_s": round(sum(base_jobs) + base_serial, 1),
+           "cost_ratio": (round(all_cost / (replay.seconds + sum(base_jobs) + base_serial), 2)
+                          if replay.seconds else None),
+           # estimated wall time of the single points on --cores cores: the dienophiles first, then the
+           # pairs longest first; the base level's pairs, then the rounds one after another
            "single_point_wall_s_all": round(all_serial + makespan(all_jobs, args.cores), 1),
-           "single_point_wall_s_rounds": round(replay.serial + sum(makespan(j, args.cores)
-                                                                   for j in replay.jobs.values()), 1),
+           "single_point_wall_s_rounds": round(replay.serial + base_serial + makespan(base_jobs, args.cores)
+                                               + sum(makespan(j, args.cores) for j in replay.jobs.values()), 1),
            "pairs_per_round_charged": {r: len(j) for r, j in sorted(replay.jobs.items())},
            **compare(full[0], part[0])}
     print(json.dumps(out, indent=1))

@@ -154,26 +154,30 @@ def _levels_computed(settings) -> list:
 
 def corrected_level(sites: pd.DataFrame, ref_table: pd.DataFrame, level, settings):
     """A corrected level's barriers: its target level's barrier estimated from GFN2-xTB terms
-    (dienes.correction), fitted on every site the target computed (library rows and reference
-    dienes, each site once). Adds <level>_barrier_kJmol, _status, _message to both tables.
-    Returns (sites, ref_table, correction summary or {'error': why})."""
+    (dienes.correction), starting from its base level's barrier where it names one (the GFN2-xTB
+    barrier is then a candidate term), fitted on every site the target computed (library rows and
+    reference dienes, each site once). Adds <level>_barrier_kJmol, _status, _message to both
+    tables. Returns (sites, ref_table, correction summary or {'error': why})."""
     from . import correction as cr
-    target, base = col(level.target, "barrier_kJmol"), col(settings.placing, "barrier_kJmol")
+    placing = col(settings.placing, "barrier_kJmol")
+    target, base = col(level.target, "barrier_kJmol"), col(level.base or settings.placing, "barrier_kJmol")
+    terms = cr.ROW_TERMS + ((placing,) if base != placing else ())
     frames = [t[t.get("site_status", pd.Series(dtype=object)) == "ok"] for t in (sites, ref_table)
               if len(t) and target in t and "transition_key" in t]
     train = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     if len(train):
         train = train[train[target].notna() & train[base].notna()].drop_duplicates(["transition_key", "site"])
-    n = len(cr.usable_rows(train, target, cr.ROW_TERMS, base)) if len(train) else 0
+    n = len(cr.usable_rows(train, target, terms, base)) if len(train) and base in train else 0
     out = []
     if n < int(level.option("min_sites", cr.MIN_ROWS)):
-        info = {"error": f"{n} sites computed at {level.target.name} with every GFN2-xTB term; the correction "
+        info = {"error": f"{n} sites computed at {level.target.name} with every term; the correction "
                          f"needs at least {level.option('min_sites', cr.MIN_ROWS)}"}
         corr = None
     else:
-        corr = cr.fit_correction(train, target, cr.ROW_TERMS, base=base)
+        corr = cr.fit_correction(train, target, terms, base=base)
         hw = corr.half_width_kJmol(float(settings["model"]["interval"]))
-        info = {"target": level.target.name, "terms": corr.terms, "coefficients": dict(zip(corr.terms, corr.coef)),
+        info = {"target": level.target.name, "base": (level.base or settings.placing).name, "terms": corr.terms,
+                "coefficients": dict(zip(corr.terms, corr.coef)),
                 "intercept": corr.intercept, "n_sites": corr.n, "loo_mae_kJmol": round(corr.loo_mae_kJmol, 2),
                 "loo_spearman": round(corr.loo_spearman, 3), "half_width_kJmol": round(hw, 2),
                 "bound_kJmol": round(corr.half_width_kJmol(float(settings["ranking"]["contenders"]["coverage"])), 2),
@@ -185,12 +189,12 @@ def corrected_level(sites: pd.DataFrame, ref_table: pd.DataFrame, level, setting
         t[col(level, "status")], t[col(level, "message")] = "not_fitted", info.get("error", "")
         if corr is not None and len(t):
             ok = (t.get("site_status", pd.Series("", index=t.index)) == "ok").to_numpy() \
-                & t[base].notna().to_numpy() & cr.predictable(t, corr.terms)
+                & (t[base].notna().to_numpy() if base in t else False) & cr.predictable(t, corr.terms)
             t.loc[ok, col(level, "barrier_kJmol")] = corr.predict(t.loc[ok])
             t.loc[ok, col(level, "status")] = "ok"
             t.loc[ok, col(level, "message")] = ""
             t.loc[~ok, col(level, "status")] = "no_terms"
-            t.loc[~ok, col(level, "message")] = "a GFN2-xTB term of the correction is missing"
+            t.loc[~ok, col(level, "message")] = "a term of the correction is missing"
         out.append(t)
     return out[0], out[1], info
 

@@ -153,11 +153,13 @@ class Level:
     program: str                 # "xtb" (places the atoms), "pyscf" (single points) or "correction"
     options: tuple               # ((key, value), ...) as validated, defaults filled in
     target: Level | None = None   # a correction level's single-point level
+    base: Level | None = None     # a correction level's starting barrier (None: GFN2-xTB's)
 
     @property
     def corrects(self) -> bool:
         """A corrected fast level: the target level's barrier estimated from GFN2-xTB terms
-        (dienes.correction), fitted in each run on the rows the target level computed."""
+        (dienes.correction), and from a cheaper single-point level's barrier where `base` names
+        one, fitted in each run on the rows the target level computed."""
         return self.program == "correction"
 
     @property
@@ -185,7 +187,7 @@ class Level:
     def label(self) -> str:
         """The level as a chemist writes it: GFN2-xTB, B3LYP/def2-SVP, ..."""
         if self.corrects:
-            return f"{self.target.label()} estimated from GFN2-xTB"
+            return f"{self.target.label()} estimated from {self.base.label() + ' and ' if self.base else ''}GFN2-xTB"
         return "GFN2-xTB" if self.places_atoms else self.dft_settings().label()
 
     def hash(self) -> str:
@@ -220,7 +222,8 @@ class Settings(Mapping):
                   for name, spec in data["levels"].items()}
         for name, lv in levels.items():
             if lv.corrects:
-                levels[name] = Level(name, lv.program, lv.options, levels[lv.option("target")])
+                base = levels[lv.option("base")] if lv.option("base") else None
+                levels[name] = Level(name, lv.program, lv.options, levels[lv.option("target")], base)
         object.__setattr__(self, "_levels", levels)
 
     def __setattr__(self, name, value):
@@ -364,6 +367,12 @@ def _check_levels(cfg: dict) -> list[str]:
             elif name in ranking["levels"] and (spec["target"] not in ranking["levels"] or ranking["levels"].index(
                     spec["target"]) > ranking["levels"].index(name)):
                 problems.append(f"ranking/levels: the corrected level {name} follows its target {spec['target']}")
+            base = spec.get("base")
+            if base is not None and name in ranking["levels"] and (
+                    levels.get(base, {}).get("program") != "pyscf" or base == spec.get("target")
+                    or base not in ranking["levels"] or ranking["levels"].index(base) == 0):
+                problems.append(f"levels/{name}/base: {base!r} must be a single-point level (program: pyscf) other "
+                                f"than the target, named in ranking/levels after the first (so every row computes it)")
     if ranking["levels"] and levels.get(ranking["levels"][0], {}).get("program") == "correction":
         problems.append("ranking/levels: a corrected level cannot rank first (it is fitted on its target's rows)")
     if ranking["rows"] != "all":

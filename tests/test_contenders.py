@@ -96,3 +96,18 @@ def test_a_row_on_the_corrected_level_carries_the_corrections_error_in_its_inter
     half0 = (plain["corrected_log10_k_high"] - plain["corrected_log10_k_low"]) / 2
     half1 = (wide["corrected_log10_k_high"] - wide["corrected_log10_k_low"]) / 2
     assert np.allclose(half1, np.sqrt(half0 ** 2 + 0.8 ** 2))
+
+
+@pytest.mark.parametrize("base,says", [("gfn2", "estimated from GFN2-xTB terms (gfn2_barrier_kJmol"),
+                                       ("quick", "estimated from the B3LYP/STO-3G barrier and GFN2-xTB terms "
+                                                 "(quick_barrier_kJmol")])
+def test_the_report_says_what_a_corrected_row_was_estimated_from(base, says):
+    from dienes.report import level_line
+    table = pd.DataFrame({"rank": [1, 2, 3], "level": ["dft", "dft", "corrected"]})
+    model = {"ranking_level": "dft",
+             "levels": {"dft": {"level": "B3LYP/def2-SVP", "barrier_kind": "free_energy"},
+                        "quick": {"level": "B3LYP/STO-3G"}, "gfn2": {"level": "GFN2-xTB"},
+                        "corrected": {"correction": {"base": base, "terms": [f"{base}_barrier_kJmol", "homo_eV"],
+                                                     "n_sites": 30, "loo_mae_kJmol": 5.1}}}}
+    text = level_line(table, model)
+    assert says in text and "1 ranked at corrected" in text and "mean 5.1 kJ/mol" in text

@@ -463,7 +463,9 @@ def level_line(table: pd.DataFrame, model: dict) -> str:
     def why(lv: str, n: int) -> str:
         corr = model.get("levels", {}).get(lv, {}).get("correction")
         if corr:
-            return (f"; {n} ranked at {lv}: {name}'s barrier estimated from GFN2-xTB terms ({', '.join(corr['terms'])}), "
+            base = model.get("levels", {}).get(corr.get("base"), {}).get("level", "GFN2-xTB")
+            source = "GFN2-xTB terms" if base == "GFN2-xTB" else f"the {base} barrier and GFN2-xTB terms"
+            return (f"; {n} ranked at {lv}: {name}'s barrier estimated from {source} ({', '.join(corr['terms'])}), "
                     f"fitted on the {corr['n_sites']} sites {name} computed in this run, its error (mean "
                     f"{corr['loo_mae_kJmol']:.1f} kJ/mol) added to their intervals")
         return f"; {n} ranked at {lv} (their {name} value failed or was not computed; see their message)"

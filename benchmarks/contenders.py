@@ -39,13 +39,13 @@ def _cost(path: Path) -> float:
         return 0.0
 
 
-def level_jobs(src: Layout, lkey: str, manifest: dict, stems=None) -> list[float]:
+def level_jobs(src: Layout, lkey: str, manifest: dict) -> list[float]:
     """Recorded seconds of each pair at one level, a job each: the pair's single points and its
     cycloadduct's (where the run computed one), plus its diene's minima the first time that diene
     comes."""
     seen, jobs = set(), []
-    for s in manifest["transitions"] if stems is None else stems:
-        key = manifest["transitions"][s]["key"]
+    for s, task in manifest["transitions"].items():
+        key = task["key"]
         job = _cost(src.level_pair(lkey, s)) + _cost(src.level_adduct(lkey, s))
         if key not in seen:
             seen.add(key)

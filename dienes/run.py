@@ -372,7 +372,7 @@ def level_round(manifest_path, r: int, out_path, results="results") -> dict:
             stems, info = ct.contenders(sites, table, done_before, corrected, settings.placing,
                                         c["bound_log10"], int(opts["top"]),
                                         summary.get("bench", {}).get("tier_width_log10"))
-            info["correction"] = {k: c[k] for k in ("terms", "n_sites", "loo_mae_kJmol", "loo_spearman",
+            info["correction"] = {k: c[k] for k in ("base", "terms", "n_sites", "loo_mae_kJmol", "loo_spearman",
                                                     "half_width_kJmol", "bound_kJmol")}
             done = not stems or r + 1 >= int(opts["max_rounds"])
     new = [s for s in dict.fromkeys(stems) if s in manifest["transitions"] and s not in done_before]

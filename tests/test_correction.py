@@ -64,8 +64,8 @@ def test_a_correction_can_start_from_a_cheaper_single_point_level(config):
     truth = t.iloc[40:]["dft_barrier_kJmol"][ok.to_numpy()]
     assert np.mean(np.abs(est.loc[ok, "corrected_barrier_kJmol"].to_numpy() - truth.to_numpy())) < 1.5
     # from GFN2-xTB alone the same rows carry the level's own noise (sd 6)
-    plain, _, info0 = corrected_level(pd.concat([train, rest], ignore_index=True), train.iloc[:0],
-                                      cfg.resolve(config.as_config()).levels["corrected"], config)
+    _, _, info0 = corrected_level(pd.concat([train, rest], ignore_index=True), train.iloc[:0],
+                                  config.levels["corrected"], config)
     assert info0["base"] == "gfn2" and info0["loo_mae_kJmol"] > 3 * info["loo_mae_kJmol"]
 
 

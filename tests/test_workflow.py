@@ -324,6 +324,18 @@ def test_the_quick_screen_a_shortlist_contenders_and_a_third_level_by_configurat
         assert r["dft_rank"] and r["gfn2_rank"] and r["dft_barrier_kJmol"] and r["gfn2_barrier_kJmol"]
     assert (tmp_path / "results" / "levels").is_dir() and len(list((tmp_path / "results" / "levels").iterdir())) == 2
 
+    # the corrected level started from that third level's barrier (computed for every row, so before
+    # round 0): the rounds, the model and the label say so; nothing is computed again
+    run = _snakemake(tmp_path, "--config", "levels={hf: {program: pyscf, method: hf, basis: sto-3g}, "
+                     "corrected: {min_sites: 5, base: hf}}", contenders.replace("[dft, corrected, gfn2]",
+                                                                            "[dft, corrected, hf, gfn2]"))
+    assert run.returncode == 0, run.stderr[-3000:]
+    assert "level_pairs" not in jobs_run(run) and jobs_run(run)["level_round"] >= 2
+    rounds = [json.loads(p.read_text()) for p in sorted((tmp_path / "results" / "rounds").glob("round*.json"))]
+    assert rounds[1]["correction"]["base"] == "hf" and rounds[1]["correction"]["terms"][0] == "hf_barrier_kJmol"
+    corr = json.loads((tmp_path / "results" / "model.json").read_text())["levels"]["corrected"]
+    assert corr["level"] == "B3LYP/STO-3G estimated from HF/STO-3G and GFN2-xTB"
+
 
 def test_unreadable_library_stops_before_computing(tmp_path):
     _setup(tmp_path, [("T-1", "C=CC=C", "a")])

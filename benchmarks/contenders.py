@@ -164,6 +164,7 @@ def main():
         base_jobs = [j for lv in part_settings.priced_levels[1:] for j in level_jobs(src, lv.key(), manifest)]
         base_serial = sum(_cost(src.level_dienophile(lv.key(), d)) for lv in part_settings.priced_levels[1:]
                           for d in manifest["dienophiles"])
+        base_cost = sum(base_jobs) + base_serial
         scratch = _scratch(source, tmp / "results", first.key())
         replay = Replay(Layout(source), scratch)
         run.level_pair, run.level_dienophile = replay.pair, replay.dienophile
@@ -180,10 +181,9 @@ def main():
            "cut_per_round": [r.get("cut_log10_k") for r in chain],
            "correction_last": chain[-1].get("correction") if len(chain) > 1 else None,
            "single_point_core_s_all": round(all_cost, 1),
-           "single_point_core_s_rounds": round(replay.seconds + sum(base_jobs) + base_serial, 1),
-           "of_which_base_level_core_s": round(sum(base_jobs) + base_serial, 1),
-           "cost_ratio": (round(all_cost / (replay.seconds + sum(base_jobs) + base_serial), 2)
-                          if replay.seconds else None),
+           "single_point_core_s_rounds": round(replay.seconds + base_cost, 1),
+           "of_which_base_level_core_s": round(base_cost, 1),
+           "cost_ratio": round(all_cost / (replay.seconds + base_cost), 2) if replay.seconds else None,
            # estimated wall time of the single points on --cores cores: the dienophiles first, then the
            # pairs longest first; the base level's pairs, then the rounds one after another
            "single_point_wall_s_all": round(all_serial + makespan(all_jobs, args.cores), 1),

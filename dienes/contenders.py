@@ -19,8 +19,8 @@ so. So the ranking level computes, in rounds:
   again;
 - the rounds end when a round finds no contender (or at ranking.contenders.max_rounds).
 
-Rows the corrected level cannot estimate (a GFN2-xTB term missing) are contenders whenever they
-have a GFN2-xTB prediction: nothing says they cannot reach the top.
+Rows the corrected level cannot estimate (a term of its correction missing) are contenders
+whenever they have a GFN2-xTB prediction: nothing says they cannot reach the top.
 """
 
 from __future__ import annotations

@@ -159,9 +159,9 @@ def corrected_level(sites: pd.DataFrame, ref_table: pd.DataFrame, level, setting
     reference dienes, each site once). Adds <level>_barrier_kJmol, _status, _message to both
     tables. Returns (sites, ref_table, correction summary or {'error': why})."""
     from . import correction as cr
-    placing = col(settings.placing, "barrier_kJmol")
-    target, base = col(level.target, "barrier_kJmol"), col(level.base or settings.placing, "barrier_kJmol")
-    terms = cr.ROW_TERMS + ((placing,) if base != placing else ())
+    start = level.base or settings.placing
+    target, base = col(level.target, "barrier_kJmol"), col(start, "barrier_kJmol")
+    terms = cr.ROW_TERMS + ((col(settings.placing, "barrier_kJmol"),) if level.base else ())
     frames = [t[t.get("site_status", pd.Series(dtype=object)) == "ok"] for t in (sites, ref_table)
               if len(t) and target in t and "transition_key" in t]
     train = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
@@ -176,7 +176,7 @@ def corrected_level(sites: pd.DataFrame, ref_table: pd.DataFrame, level, setting
     else:
         corr = cr.fit_correction(train, target, terms, base=base)
         hw = corr.half_width_kJmol(float(settings["model"]["interval"]))
-        info = {"target": level.target.name, "base": (level.base or settings.placing).name, "terms": corr.terms,
+        info = {"target": level.target.name, "base": start.name, "terms": corr.terms,
                 "coefficients": dict(zip(corr.terms, corr.coef)),
                 "intercept": corr.intercept, "n_sites": corr.n, "loo_mae_kJmol": round(corr.loo_mae_kJmol, 2),
                 "loo_spearman": round(corr.loo_spearman, 3), "half_width_kJmol": round(hw, 2),

@@ -368,11 +368,13 @@ def _check_levels(cfg: dict) -> list[str]:
                     spec["target"]) > ranking["levels"].index(name)):
                 problems.append(f"ranking/levels: the corrected level {name} follows its target {spec['target']}")
             base = spec.get("base")
-            if base is not None and name in ranking["levels"] and (
-                    levels.get(base, {}).get("program") != "pyscf" or base == spec.get("target")
-                    or base not in ranking["levels"] or ranking["levels"].index(base) == 0):
-                problems.append(f"levels/{name}/base: {base!r} must be a single-point level (program: pyscf) other "
-                                f"than the target, named in ranking/levels after the first (so every row computes it)")
+            if base is not None and (levels.get(base, {}).get("program") != "pyscf" or base == spec.get("target")):
+                problems.append(f"levels/{name}/base: {base!r} is not a single-point level (program: pyscf) named "
+                                f"under levels other than the target")
+            elif base is not None and name in ranking["levels"] and (
+                    base not in ranking["levels"] or ranking["levels"].index(base) == 0):
+                problems.append(f"levels/{name}/base: {base!r} must be named in ranking/levels after the first "
+                                f"(so every row computes it)")
     if ranking["levels"] and levels.get(ranking["levels"][0], {}).get("program") == "correction":
         problems.append("ranking/levels: a corrected level cannot rank first (it is fitted on its target's rows)")
     if ranking["rows"] != "all":

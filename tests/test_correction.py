@@ -72,8 +72,13 @@ def test_a_correction_can_start_from_a_cheaper_single_point_level(config):
 @pytest.mark.parametrize("base,order", [("gfn2", ("dft", "corrected", "quick", "gfn2")),
                                         ("dft", ("dft", "corrected", "quick", "gfn2")),
                                         ("quick", ("dft", "corrected", "gfn2")),
-                                        ("quick", ("quick", "dft", "corrected", "gfn2"))])
+                                        ("quick", ("quick", "dft", "corrected", "gfn2")),
+                                        ("nosuch", ("dft", "gfn2"))])
 def test_a_correction_base_must_be_another_single_point_level_every_row_computes(config, base, order):
+    # refused with a line naming the option, also where the corrected level does not rank
     from dienes import settings as cfg
+    c = _with_base(config, base, order)
+    if "corrected" not in order:
+        c["ranking"]["rows"] = "all"
     with pytest.raises(ValueError, match="levels/corrected/base"):
-        cfg.resolve(_with_base(config, base, order))
+        cfg.resolve(c)

@@ -83,6 +83,12 @@ def _rank(args) -> int:
     if local_config.is_file():
         print(f"dienes: using {local_config} (the working directory's own config) instead of the shipped "
               "config/config.yaml", file=sys.stderr)
+        import yaml
+        reference = (yaml.safe_load(local_config.read_text()) or {}).get("reference")
+        if reference and not (workdir / reference).is_file() and not any(
+                s.startswith("reference=") for s in args.set or []):
+            return _fail(f"{local_config}: reference {reference!r} is not a file (a relative path is read from "
+                         f"{workdir}); copy {REPO / 'config' / 'reference_rates.csv'} there or give a full path")
     else:
         overrides.append(f"reference={REPO / 'config' / 'reference_rates.csv'}")
     if args.dienophile:

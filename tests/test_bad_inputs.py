@@ -73,7 +73,8 @@ def test_a_working_directory_config_is_announced(tmp_path, monkeypatch, capsys):
     import subprocess
     from dienes import cli
     (tmp_path / "config").mkdir()
-    (tmp_path / "config" / "config.yaml").write_text((Path(REPO) / "config" / "config.yaml").read_text())
+    for name in ("config.yaml", "reference_rates.csv"):
+        (tmp_path / "config" / name).write_text((Path(REPO) / "config" / name).read_text())
     lib = tmp_path / "lib.csv"
     lib.write_text("id,smiles\nA,C=CC=C\n")
     seen = {}
@@ -82,6 +83,21 @@ def test_a_working_directory_config_is_announced(tmp_path, monkeypatch, capsys):
     err = capsys.readouterr().err
     assert f"using {tmp_path / 'config' / 'config.yaml'}" in err
     assert str(tmp_path / "config" / "config.yaml") in seen["cmd"]
+
+
+def test_a_working_directory_config_whose_reference_is_missing_is_refused(tmp_path, monkeypatch, capsys):
+    # the shipped config names its reference kinetics relative to the directory it runs in; copied
+    # alone into a working directory it would stop Snakemake with a missing-input trace: one line
+    # naming the file and the remedy instead (common practice: fail early, say what to do)
+    from dienes import cli
+    (tmp_path / "config").mkdir()
+    (tmp_path / "config" / "config.yaml").write_text((Path(REPO) / "config" / "config.yaml").read_text())
+    lib = tmp_path / "lib.csv"
+    lib.write_text("id,smiles\nA,C=CC=C\n")
+    monkeypatch.setattr(cli.subprocess, "run", lambda *a, **k: pytest.fail("Snakemake started"))
+    assert cli.main(["rank", str(lib), "--workdir", str(tmp_path), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "reference 'config/reference_rates.csv' is not a file" in err and "reference_rates.csv there" in err
 
 
 SMILES_ALPHABET = "CcNnOoSsFlBrI()[]=#@+-/\\.%0123456789Hh "

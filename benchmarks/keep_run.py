@@ -78,7 +78,7 @@ def pack(run: Path, archive: Path) -> None:
         for name in KEPT:
             if (run / name).exists():
                 tar.add(run / name, arcname=name, filter=keep)
-    pairs = {p.parent.parent.name: len(list(p.glob("*.json"))) for p in (run / "results" / "levels").glob("*/pairs")}
+    pairs = {p.parent.name: len(list(p.glob("*.json"))) for p in (run / "results" / "levels").glob("*/pairs")}
     print(f"{archive}: {archive.stat().st_size / 1e6:.1f} MB; pairs computed per level: {pairs}")
 
 

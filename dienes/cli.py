@@ -84,8 +84,12 @@ def _rank(args) -> int:
         print(f"dienes: using {local_config} (the working directory's own config) instead of the shipped "
               "config/config.yaml", file=sys.stderr)
         import yaml
-        reference = (yaml.safe_load(local_config.read_text()) or {}).get("reference")
-        if reference and not (workdir / reference).is_file() and not any(
+        try:
+            local = yaml.safe_load(local_config.read_text())
+        except yaml.YAMLError as exc:
+            return _fail(f"{local_config}: not valid YAML ({exc})")
+        reference = local.get("reference") if isinstance(local, dict) else None
+        if isinstance(reference, str) and not (workdir / reference).is_file() and not any(
                 s.startswith("reference=") for s in args.set or []):
             return _fail(f"{local_config}: reference {reference!r} is not a file (a relative path is read from "
                          f"{workdir}); copy {REPO / 'config' / 'reference_rates.csv'} there or give a full path")

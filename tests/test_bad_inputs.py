@@ -100,17 +100,6 @@ def test_a_working_directory_config_whose_reference_is_missing_is_refused(tmp_pa
     assert "reference 'config/reference_rates.csv' is not a file" in err and "reference_rates.csv there" in err
 
 
-def test_a_working_directory_config_that_is_not_yaml_is_refused(tmp_path, capsys):
-    # a broken local config is named with the parser's reason, before any work (common practice)
-    from dienes import cli
-    (tmp_path / "config").mkdir()
-    (tmp_path / "config" / "config.yaml").write_text("ranking: [dft,\n")
-    lib = tmp_path / "lib.csv"
-    lib.write_text("id,smiles\nA,C=CC=C\n")
-    assert cli.main(["rank", str(lib), "--workdir", str(tmp_path), "--quiet"]) == 2
-    assert "config.yaml: not valid YAML" in capsys.readouterr().err
-
-
 SMILES_ALPHABET = "CcNnOoSsFlBrI()[]=#@+-/\\.%0123456789Hh "
 
 

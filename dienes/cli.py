@@ -295,7 +295,7 @@ def _look_as_rank(args, dph_smiles: str) -> None:
     if not Path(config["reference"]).is_absolute():
         config["reference"] = str(workdir / config["reference"])
     print("\ncomputing it as `dienes rank` would, with that run's settings and results (a diene it has not "
-          "seen takes a minute or two at the density-functional level) ...", flush=True)
+          "seen takes two to four minutes at the density-functional level) ...", flush=True)
     with tempfile.TemporaryDirectory() as tmp:
         lib = Path(tmp) / "look.csv"
         pd.DataFrame({"id": ["look"], "smiles": [args.smiles]}).to_csv(lib, index=False)
@@ -362,9 +362,9 @@ def parser() -> argparse.ArgumentParser:
                      help="a quick GFN2-xTB screen: rank without the density-functional single points (about a "
                           "sixth of the time; GFN2-xTB misorders the top, the output says so) (default: off)")
     how.add_argument("--rows", type=_rows, metavar="all|contenders|auto|N",
-                     help="which dienes are recomputed at the density-functional level (about a minute per diene on "
-                          "one core): all; contenders (a sample spanning the library, then every diene whose "
-                          "corrected GFN2-xTB estimate could reach the top; the rest ranked on that estimate, "
+                     help="which dienes are recomputed at the density-functional level (two to four minutes "
+                          "per diene on one core): all; contenders (a sample spanning the library, then every "
+                          "diene whose corrected GFN2-xTB estimate could reach the top; the rest ranked on that estimate, "
                           "with its error in their intervals); auto (all up to 150 dienes, contenders above); or "
                           "the N best by GFN2-xTB (risky: GFN2-xTB misorders the top) (default: the config's "
                           "ranking.rows, auto)")

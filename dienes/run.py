@@ -31,7 +31,7 @@ THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"
                     "VECLIB_MAXIMUM_THREADS", "NUMEXPR_NUM_THREADS")
 AUTO_JOBS = 16           # structures_per_job 'auto': new work is cut into about this many jobs
 AUTO_MAX_PER_JOB = 25    # ... of at most this many structures
-AUTO_LEVEL_JOBS = 24     # single points (about a minute a pair) are cut into about this many jobs
+AUTO_LEVEL_JOBS = 24     # single points (two to four minutes a pair, cycloadduct included) go in about this many jobs
 PROFILES_SHOWN = 3       # torsion profiles of the top and bottom ranked freely rotating dienes
 
 

@@ -113,7 +113,13 @@ def _rank(args) -> int:
             shipped = shipped | {"ranking": dict(shipped["ranking"]) | {"rows": int(args.rows) if args.rows.isdigit()
                                                                         else args.rows}}
         rows = shipped.rows_mode
-    print(run_estimate(library, workdir, args.cores, quick=args.quick, rows=rows), file=sys.stderr)
+    given = dict(o.split("=", 1) for o in overrides if "=" in o)      # the last of a key wins, as in Snakemake
+    if "dienophile" not in given or "reference" not in given:
+        from . import settings as cfg
+        own = cfg.load(configfile, fallback=False)
+        given = {"dienophile": own["dienophile"], "reference": own["reference"]} | given
+    print(run_estimate(library, workdir, args.cores, quick=args.quick, rows=rows, dienophile=given["dienophile"],
+                       reference=workdir / given["reference"]), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
            "--directory", str(workdir), "--cores", str(args.cores), "--configfile", str(configfile),
@@ -138,22 +144,33 @@ def _rank(args) -> int:
     return 0
 
 
-def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="all") -> str:
-    """One line before the run: rows to compute and the expected wall time (dienes.estimate).
+def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="all",
+                 dienophile: str = "O=C1OC(=O)C=C1", reference: Path | None = None) -> str:
+    """One line before the run: rows to compute and the expected wall time (dienes.estimate), each row
+    charged by the size of its pair with `dienophile` (a SMILES or a common name), a row the
+    `reference` kinetics file computes anyway (same diene and dienophile) inside the reference set's cost.
     `rows`: what ranking.rows means ('all', 'contenders', N), or a function of the library's size
     that says it (Settings.rows_mode)."""
     from . import estimate
+    from .dienophiles import smiles_of
     from .library import read_rows
     try:
         smiles = [s for _, s, _ in read_rows(library)]
     except (OSError, ValueError) as exc:
         return f"dienes: no time estimate ({exc})"
-    new, ref_done = estimate.rows_to_compute(smiles, workdir)
+    dienophile = smiles_of(dienophile)
+    fast, slow, ref_done = estimate.rows_to_compute(smiles, workdir, dienophile)
     share, how = estimate.dft_share(rows(len(smiles)) if callable(rows) else rows, len(smiles))
-    wall = estimate.wall_time_s(new, cores, quick, ref_done, share)
-    return (f"dienes: {len(smiles)} rows, {new} to compute{'' if ref_done else ' plus the reference set (once)'}"
+    ref_done = ref_done if not quick else (ref_done[0], True)
+    shared = set(estimate.shared_with_reference(smiles, reference, dienophile))   # in the reference set's cost
+    fast, slow = [s for s in fast if s not in shared], [s for s in slow if s not in shared]
+    work = (estimate.size_factors(fast, dienophile)[0], estimate.size_factors(slow, dienophile)[1])
+    wall = estimate.wall_time_s(work, cores, quick, ref_done, share)
+    new = len(fast) if quick else len(slow)       # a row still to compute at GFN2-xTB is at the next level too
+    return (f"dienes: {len(smiles)} rows, {new} to compute{'' if all(ref_done) else ' plus the reference set (once)'}"
             f"{'' if quick else how}; expected {estimate.say(wall)} on {cores} core(s)"
-            f"{' (quick screen)' if quick else ''}, for catalogues like the demo (a guide within a factor of two)")
+            f"{' (quick screen)' if quick else ''}, from the sizes of the dienes and the dienophile "
+            "(a guide within a factor of two)")
 
 
 def condition_overrides(args) -> list[str]:

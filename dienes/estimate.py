@@ -4,9 +4,12 @@ Per-row costs in core-seconds, measured on a clean run of the demo library (READ
 `benchmarks/plan.py` on its results): the GFN2-xTB stage (conformers, optimisation, planar s-cis, transition
 structures) and the density-functional single points of one row, plus the reference set's
 one-off cost the first time a working directory sees it. A row already computed in the
-working directory (same SMILES in its results/manifest.json with status ok) costs nothing; the
-estimate assumes catalogues like the demo (size, flexibility), so it is a guide within a factor
-of about two.
+working directory (same SMILES in its results/manifest.json with status ok) costs nothing. A row's
+costs grow with its size: the diene's own part (conformers, minima) with its atoms, the rest with
+the atoms of the pair it makes with the run's dienophile, each as a power law measured on the
+benchmark library's run, so a catalogue of larger dienes or a larger dienophile is charged more
+than the demo. Flexibility and the share of invalid rows are taken as the demo's, so it is a guide
+within a factor of about two.
 """
 
 from __future__ import annotations
@@ -20,22 +23,95 @@ GFN2_ROW_CORE_S = 23.0          # GFN2-xTB stage per library row
 # (measured side by side on demo pairs: 0.9-1.3 times, median transition structure 48 s)
 DFT_ROW_CORE_S = 88.0 + 48.0
 GFN2_REFERENCE_ONCE_CORE_S = 223.0      # the reference set at GFN2-xTB, once per working directory
-REFERENCE_ONCE_CORE_S = 223.0 + 890.0 * DFT_ROW_CORE_S / 88.0   # the reference set, GFN2-xTB + density functional, once
+DFT_REFERENCE_ONCE_CORE_S = 890.0 * DFT_ROW_CORE_S / 88.0       # ... and at the density-functional level
 PARALLEL_EFFICIENCY = 0.96      # measured on the demo: core-seconds / (wall x cores)
+# cost against size, fitted as power laws on the benchmark library's run (170 rows; 8-36 atoms a diene,
+# hydrogens included, 17-45 a pair with maleic anhydride): GFN2-xTB conformers against the diene's
+# atoms 3.3 (199 structures), transition structures against the pair's 3.0 (198); at the
+# density-functional level the diene's minima 3.1 (50), transition structure + cycloadduct 2.8 (48).
+# One exponent serves all four; a part that depends on the diene alone keeps its share of the demo's
+# cost (from the same fits at the demo's size). A single row is off by a factor of about 1.6-2.6
+# either way, a catalogue's total much less.
+SIZE_EXPONENT = 3.0
+GFN2_DIENE_SHARE = 0.17         # conformer search: 2.6 of 15.2 core-s at the demo's size
+DFT_DIENE_SHARE = 0.15          # the diene's minima: 17 of 116 core-s at the demo's size
+DEMO_DIENE_ATOMS = 19.4         # the demo library's dienes, cube-mean (the size the per-row costs are for)
+DEMO_PAIR_ATOMS = 27.8          # ... and their pairs with maleic anhydride
 CONTENDERS_SHARE = 1.0          # a contenders run: at most every row. Measured (benchmarks/contenders.py): 0.92 of
                                 # the core-seconds on the demo, 0.84 on 103 benchmark rows; less on catalogues of
                                 # many hundreds (estimated, docs/validation.md), so this stays an upper bound
 
 
-def rows_to_compute(library_smiles: list[str], workdir: Path) -> tuple[int, bool]:
-    """(library rows not yet computed in `workdir`, whether its reference set is computed)."""
-    manifest = Path(workdir) / "results" / "manifest.json"
+def rows_to_compute(library_smiles: list[str], workdir: Path,
+                    dienophile_smiles: str | None = None) -> tuple[list[str], list[str], tuple[bool, bool]]:
+    """What `workdir`'s results already hold: (the rows whose GFN2-xTB stage is still to compute,
+    the rows whose density-functional single points are, whether the reference set is computed at
+    GFN2-xTB and at the density-functional level).
+    A row is computed when a row with its SMILES is in results/manifest.json with status ok and the
+    result files of every isomer are on disk (its structure; a pair at some level with the same
+    dienophile), so a run stopped early is charged for what it left."""
+    from .layout import Layout
+    from .settings import canonical_smiles
+    results = Layout(Path(workdir) / "results")
     try:
-        done = json.loads(manifest.read_text())
+        done = json.loads(results.manifest.read_text())
     except (OSError, ValueError):
-        return len(library_smiles), False
-    seen = {r["smiles"] for r in done.get("records", []) if r.get("status") == "ok"}
-    return sum(1 for s in library_smiles if s not in seen), bool(done.get("reference_records"))
+        return list(library_smiles), list(library_smiles), (False, False)
+    dph = canonical_smiles(dienophile_smiles) if dienophile_smiles else None
+
+    def computed(rec: dict, own_dienophile: bool = False) -> tuple[bool, bool]:
+        keys = [i["key"] for i in rec.get("isomers", [])]
+        if rec.get("status") != "ok" or not keys:
+            return False, False
+        fast = all(results.structure(k).is_file() for k in keys)
+        same = own_dienophile or dph is None or canonical_smiles((rec.get("dienophile") or {}).get("smiles", "")) == dph
+        slow = fast and same and all(any(results.root.glob(f"levels/*/pairs/{k}__*.json")) for k in keys)
+        return fast, slow
+
+    state = {r["smiles"]: computed(r) for r in done.get("records", [])}
+    refs = [computed(r, own_dienophile=True) for r in done.get("reference_records", [])]
+    return ([s for s in library_smiles if not state.get(s, (False, False))[0]],
+            [s for s in library_smiles if not state.get(s, (False, False))[1]],
+            (bool(refs) and all(f for f, _ in refs), bool(refs) and all(d for _, d in refs)))
+
+
+def shared_with_reference(library_smiles: list[str], reference: Path | None, dienophile_smiles: str) -> list[str]:
+    """The rows of `library_smiles` the reference set computes anyway: the same diene (canonical SMILES)
+    with the same dienophile. An unreadable reference file shares nothing (the run says why)."""
+    import csv
+
+    from .settings import canonical_smiles
+    try:
+        with open(reference, newline="") as fh:
+            pairs = {(canonical_smiles(r.get("smiles") or ""), canonical_smiles(r.get("dienophile_smiles") or ""))
+                     for r in csv.DictReader(fh)}
+    except (OSError, TypeError, ValueError, csv.Error):
+        return []
+    dph = canonical_smiles(dienophile_smiles)
+    return [s for s in library_smiles if (canonical_smiles(s), dph) in pairs]
+
+
+def atoms(smiles: str) -> int:
+    """Atoms of a SMILES' largest fragment, hydrogens included (0 where RDKit cannot read it: such a row
+    costs nothing)."""
+    from rdkit import Chem, RDLogger
+    RDLogger.DisableLog("rdApp.*")
+    mol = Chem.MolFromSmiles(str(smiles))
+    if mol is None:
+        return 0
+    return max(Chem.AddHs(frag).GetNumAtoms() for frag in Chem.GetMolFrags(mol, asMols=True))
+
+
+def size_factors(library_smiles: list[str], dienophile_smiles: str) -> tuple[float, float]:
+    """(GFN2-xTB, density-functional) cost of these rows counted in demo rows: per row, the part that
+    depends on the diene alone scaled by (its atoms / the demo's)^SIZE_EXPONENT, the part with the
+    dienophile by (the pair's atoms / the demo's)^SIZE_EXPONENT; an unreadable row costs 0."""
+    dph = atoms(dienophile_smiles)
+    sizes = [n for n in map(atoms, library_smiles) if n]
+    diene = sum((n / DEMO_DIENE_ATOMS) ** SIZE_EXPONENT for n in sizes)
+    pair = sum(((n + dph) / DEMO_PAIR_ATOMS) ** SIZE_EXPONENT for n in sizes)
+    return (GFN2_DIENE_SHARE * diene + (1 - GFN2_DIENE_SHARE) * pair,
+            DFT_DIENE_SHARE * diene + (1 - DFT_DIENE_SHARE) * pair)
 
 
 def dft_share(rows, n_rows: int) -> tuple[float, str]:
@@ -51,12 +127,16 @@ def dft_share(rows, n_rows: int) -> tuple[float, str]:
     return 1.0, ""
 
 
-def wall_time_s(new_rows: int, cores: int, quick: bool, reference_done: bool, dft_share: float = 1.0) -> float:
-    """Expected wall time (s) of a run computing `new_rows` rows on `cores` cores, dft_share of them
-    at the density-functional level."""
-    per_row = GFN2_ROW_CORE_S + (0.0 if quick else DFT_ROW_CORE_S * dft_share)
-    once = 0.0 if reference_done else (GFN2_REFERENCE_ONCE_CORE_S if quick else REFERENCE_ONCE_CORE_S)
-    return (once + new_rows * per_row) / max(int(cores), 1) / PARALLEL_EFFICIENCY
+def wall_time_s(new_rows: tuple[float, float], cores: int, quick: bool, reference_done: tuple[bool, bool],
+                dft_share: float = 1.0) -> float:
+    """Expected wall time (s) of a run computing rows worth `new_rows` demo rows (GFN2-xTB stage,
+    density-functional level: size_factors) on `cores` cores, dft_share of them at the
+    density-functional level, and the reference set at each level where it is not yet computed."""
+    gfn2_rows, dft_rows = new_rows
+    work = GFN2_ROW_CORE_S * gfn2_rows + (0.0 if reference_done[0] else GFN2_REFERENCE_ONCE_CORE_S)
+    if not quick:
+        work += DFT_ROW_CORE_S * dft_share * dft_rows + (0.0 if reference_done[1] else DFT_REFERENCE_ONCE_CORE_S)
+    return work / max(int(cores), 1) / PARALLEL_EFFICIENCY
 
 
 def say(seconds: float) -> str:

@@ -49,24 +49,64 @@ def test_the_command_line_names_conditions_and_dienophiles(config):
 
 
 def test_the_run_time_is_estimated_before_the_run(tmp_path):
-    # 50 new rows on 2 cores at the default level: (reference once + 50 x per-row core-s) / 2 /
-    # efficiency, the demo's own measured costs (README, Throughput); rows already computed in the
-    # working directory cost nothing, and the quick screen skips the density-functional part
+    # 50 new rows on 2 cores at the default level: (reference once + each row's per-row core-s scaled by
+    # its size) / 2 / efficiency, the demo's own measured costs (README, Throughput); rows already
+    # computed in the working directory cost nothing, and the quick screen skips the
+    # density-functional part
     import json
     from dienes import cli, estimate
     lib = tmp_path / "lib.csv"
-    lib.write_text("id,smiles\n" + "".join(f"r{i},C=CC=C{'C' * i}\n" for i in range(50)))
+    smiles = [f"C=CC=C{'C' * (i // 10)}" for i in range(50)]   # five dienes, ten rows each
+    lib.write_text("id,smiles\n" + "".join(f"r{i},{s}\n" for i, s in enumerate(smiles)))
     line = cli.run_estimate(lib, tmp_path, 2, quick=False)
-    expected = (estimate.REFERENCE_ONCE_CORE_S + 50 * (estimate.GFN2_ROW_CORE_S + estimate.DFT_ROW_CORE_S)) / 2 / estimate.PARALLEL_EFFICIENCY
+    g, d = estimate.size_factors(smiles, "O=C1OC(=O)C=C1")
+    expected = (estimate.GFN2_REFERENCE_ONCE_CORE_S + estimate.DFT_REFERENCE_ONCE_CORE_S
+                + g * estimate.GFN2_ROW_CORE_S + d * estimate.DFT_ROW_CORE_S) / 2 / estimate.PARALLEL_EFFICIENCY
     assert "50 rows, 50 to compute plus the reference set" in line and estimate.say(expected) in line
-    (tmp_path / "results").mkdir()
-    (tmp_path / "results" / "manifest.json").write_text(json.dumps({
-        "records": [{"smiles": f"C=CC=C{'C' * i}", "status": "ok"} for i in range(40)], "reference_records": [{}]}))
+    # a working directory whose manifest lists the first four dienes (40 rows) and the reference set:
+    # a row counts as computed only where its result files are on disk
+    results = tmp_path / "results"
+    (results / "structures").mkdir(parents=True)
+    (results / "levels" / "dft-0" / "pairs").mkdir(parents=True)
+    records = [{"smiles": s, "status": "ok", "isomers": [{"key": f"k{i}"}],
+                "dienophile": {"smiles": "O=C1OC(=O)C=C1"}} for i, s in enumerate(sorted(set(smiles[:40])))]
+    ref = {"smiles": "C=CC=C", "status": "ok", "isomers": [{"key": "ref"}], "dienophile": {"smiles": "O=C1OC(=O)C=C1"}}
+    (results / "manifest.json").write_text(json.dumps({"records": records, "reference_records": [ref]}))
+    for key in [f"k{i}" for i in range(4)] + ["ref"]:
+        (results / "structures" / f"{key}.json").write_text("{}")
+    assert "50 rows, 10 to compute;" in cli.run_estimate(lib, tmp_path, 2, quick=True)
+    assert "50 rows, 50 to compute plus the reference set" in cli.run_estimate(lib, tmp_path, 2, quick=False)
+    for key in [f"k{i}" for i in range(4)] + ["ref"]:
+        (results / "levels" / "dft-0" / "pairs" / f"{key}__t.json").write_text("{}")
+    assert "50 rows, 10 to compute;" in cli.run_estimate(lib, tmp_path, 2, quick=False)
+    assert "50 rows, 50 to compute;" in cli.run_estimate(lib, tmp_path, 2, quick=False, dienophile="C=C")
     again = cli.run_estimate(lib, tmp_path, 2, quick=True)
-    assert "50 rows, 10 to compute;" in again and "quick screen" in again
-    assert estimate.say(10 * estimate.GFN2_ROW_CORE_S / 2 / estimate.PARALLEL_EFFICIENCY) in again
+    assert "quick screen" in again
+    g10, d10 = estimate.size_factors(smiles[40:], "O=C1OC(=O)C=C1")
+    assert estimate.say(g10 * estimate.GFN2_ROW_CORE_S / 2 / estimate.PARALLEL_EFFICIENCY) in again
     # ranking.rows N: only N of the rows cost a density-functional part (10 new rows here)
     five = cli.run_estimate(lib, tmp_path, 2, quick=False, rows="5")
     assert "the 5 best by GFN2-xTB" in five
-    assert estimate.say(10 * (estimate.GFN2_ROW_CORE_S + 0.1 * estimate.DFT_ROW_CORE_S) / 2
+    assert estimate.say((g10 * estimate.GFN2_ROW_CORE_S + 0.1 * d10 * estimate.DFT_ROW_CORE_S) / 2
                         / estimate.PARALLEL_EFFICIENCY) in five
+
+
+def test_the_estimate_charges_by_size_and_skips_what_the_reference_set_computes(tmp_path):
+    # per-row cost against size: power laws measured on the benchmark library's run (dienes/estimate.py);
+    # a demo-sized row costs the demo's per-row cost, a larger diene or dienophile more, an unreadable
+    # row nothing, and a diene the reference set prices with the same dienophile nothing beyond the
+    # reference set's own cost
+    from dienes import estimate
+    assert estimate.atoms("C=CC=C") == 10 and estimate.atoms("C=CC=C.[Na+].[Cl-]") == 10
+    assert estimate.size_factors(["not a smiles"], "C=C") == (0.0, 0.0)
+    butadiene = estimate.size_factors(["C=CC=C"], "O=C1OC(=O)C=C1")
+    hexatriene_sized = estimate.size_factors(["C=CC=CC=CC=C"], "O=C1OC(=O)C=C1")
+    with_npm = estimate.size_factors(["C=CC=C"], "O=C1C=CC(=O)N1c1ccccc1")
+    assert all(a < b for a, b in zip(butadiene, hexatriene_sized)) and all(a < b for a, b in zip(butadiene, with_npm))
+    # butadiene + maleic anhydride, 19 atoms against the demo's 27.8 a pair: (19/27.8)^3 of the pair part
+    assert butadiene[1] == pytest.approx(0.15 * (10 / 19.4) ** 3 + 0.85 * (19 / 27.8) ** 3, rel=1e-3)
+    ref = tmp_path / "ref.csv"
+    ref.write_text("id,smiles,dienophile_smiles,log10_k\nb,C=CC=C,O=C1OC(=O)C=C1,0\n")
+    assert estimate.shared_with_reference(["C(=C)C=C", "CC=CC=C"], ref, "O=C1OC(=O)C=C1") == ["C(=C)C=C"]
+    assert estimate.shared_with_reference(["C=CC=C"], ref, "C=C") == []
+    assert estimate.shared_with_reference(["C=CC=C"], tmp_path / "missing.csv", "O=C1OC(=O)C=C1") == []

@@ -113,13 +113,13 @@ def _rank(args) -> int:
             shipped = shipped | {"ranking": dict(shipped["ranking"]) | {"rows": int(args.rows) if args.rows.isdigit()
                                                                         else args.rows}}
         rows = shipped.rows_mode
-    given = dict(o.split("=", 1) for o in overrides if "=" in o)      # the last of a key wins, as in Snakemake
-    if "dienophile" not in given or "reference" not in given:
-        from . import settings as cfg
-        own = cfg.load(configfile, fallback=False)
-        given = {"dienophile": own["dienophile"], "reference": own["reference"]} | given
+    from . import settings as cfg
+    own = cfg.load(configfile, fallback=False)
+    given = {"dienophile": own["dienophile"], "reference": own["reference"]} | dict(
+        o.split("=", 1) for o in overrides if "=" in o)              # the last of a key wins, as in Snakemake
     print(run_estimate(library, workdir, args.cores, quick=args.quick, rows=rows, dienophile=given["dienophile"],
-                       reference=workdir / given["reference"]), file=sys.stderr)
+                       reference=workdir / given["reference"],
+                       level_key=own.priced_levels[0].key() if own.priced_levels else "*"), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
            "--directory", str(workdir), "--cores", str(args.cores), "--configfile", str(configfile),
@@ -145,10 +145,11 @@ def _rank(args) -> int:
 
 
 def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="all",
-                 dienophile: str = "O=C1OC(=O)C=C1", reference: Path | None = None) -> str:
+                 dienophile: str = "O=C1OC(=O)C=C1", reference: Path | None = None, level_key: str = "*") -> str:
     """One line before the run: rows to compute and the expected wall time (dienes.estimate), each row
     charged by the size of its pair with `dienophile` (a SMILES or a common name), a row the
-    `reference` kinetics file computes anyway (same diene and dienophile) inside the reference set's cost.
+    `reference` kinetics file computes anyway (same diene and dienophile) inside the reference set's cost;
+    `level_key`: the results folder of the first ranking level (estimate.rows_to_compute).
     `rows`: what ranking.rows means ('all', 'contenders', N), or a function of the library's size
     that says it (Settings.rows_mode)."""
     from . import estimate
@@ -159,7 +160,7 @@ def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="al
     except (OSError, ValueError) as exc:
         return f"dienes: no time estimate ({exc})"
     dienophile = smiles_of(dienophile)
-    fast, slow, ref_done = estimate.rows_to_compute(smiles, workdir, dienophile)
+    fast, slow, ref_done = estimate.rows_to_compute(smiles, workdir, dienophile, level_key)
     share, how = estimate.dft_share(rows(len(smiles)) if callable(rows) else rows, len(smiles))
     ref_done = ref_done if not quick else (ref_done[0], True)
     shared = set(estimate.shared_with_reference(smiles, reference, dienophile))   # in the reference set's cost

@@ -42,14 +42,14 @@ CONTENDERS_SHARE = 1.0          # a contenders run: at most every row. Measured 
                                 # many hundreds (estimated, docs/validation.md), so this stays an upper bound
 
 
-def rows_to_compute(library_smiles: list[str], workdir: Path,
-                    dienophile_smiles: str | None = None) -> tuple[list[str], list[str], tuple[bool, bool]]:
+def rows_to_compute(library_smiles: list[str], workdir: Path, dienophile_smiles: str | None = None,
+                    level_key: str = "*") -> tuple[list[str], list[str], tuple[bool, bool]]:
     """What `workdir`'s results already hold: (the rows whose GFN2-xTB stage is still to compute,
     the rows whose density-functional single points are, whether the reference set is computed at
     GFN2-xTB and at the density-functional level).
     A row is computed when a row with its SMILES is in results/manifest.json with status ok and the
-    result files of every isomer are on disk (its structure; a pair at some level with the same
-    dienophile), so a run stopped early is charged for what it left."""
+    result files of every isomer are on disk (its structure; a pair with the same dienophile at the
+    level `level_key`, '<name>-<hash>', or at any), so a run stopped early is charged for what it left."""
     from .layout import Layout
     from .settings import canonical_smiles
     results = Layout(Path(workdir) / "results")
@@ -58,6 +58,7 @@ def rows_to_compute(library_smiles: list[str], workdir: Path,
     except (OSError, ValueError):
         return list(library_smiles), list(library_smiles), (False, False)
     dph = canonical_smiles(dienophile_smiles) if dienophile_smiles else None
+    priced = {f.name.split("__")[0] for f in results.root.glob(f"levels/{level_key}/pairs/*.json")}   # structures
 
     def computed(rec: dict, own_dienophile: bool = False) -> tuple[bool, bool]:
         keys = [i["key"] for i in rec.get("isomers", [])]
@@ -65,7 +66,7 @@ def rows_to_compute(library_smiles: list[str], workdir: Path,
             return False, False
         fast = all(results.structure(k).is_file() for k in keys)
         same = own_dienophile or dph is None or canonical_smiles((rec.get("dienophile") or {}).get("smiles", "")) == dph
-        slow = fast and same and all(any(results.root.glob(f"levels/*/pairs/{k}__*.json")) for k in keys)
+        slow = fast and same and all(k in priced for k in keys)
         return fast, slow
 
     state = {r["smiles"]: computed(r) for r in done.get("records", [])}

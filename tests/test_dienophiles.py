@@ -79,6 +79,8 @@ def test_the_run_time_is_estimated_before_the_run(tmp_path):
     for key in [f"k{i}" for i in range(4)] + ["ref"]:
         (results / "levels" / "dft-0" / "pairs" / f"{key}__t.json").write_text("{}")
     assert "50 rows, 10 to compute;" in cli.run_estimate(lib, tmp_path, 2, quick=False)
+    assert "10 to compute;" in cli.run_estimate(lib, tmp_path, 2, quick=False, level_key="dft-0")
+    assert "50 to compute plus" in cli.run_estimate(lib, tmp_path, 2, quick=False, level_key="dft-1")  # other settings
     assert "50 rows, 50 to compute;" in cli.run_estimate(lib, tmp_path, 2, quick=False, dienophile="C=C")
     again = cli.run_estimate(lib, tmp_path, 2, quick=True)
     assert "quick screen" in again

@@ -65,7 +65,8 @@ def rows_to_compute(library_smiles: list[str], workdir: Path, dienophile_smiles:
         if rec.get("status") != "ok" or not keys:
             return False, False
         fast = all(results.structure(k).is_file() for k in keys)
-        same = own_dienophile or dph is None or canonical_smiles((rec.get("dienophile") or {}).get("smiles", "")) == dph
+        given = canonical_smiles((rec.get("dienophile") or {}).get("smiles", ""))
+        same = own_dienophile or dph is None or given == dph
         slow = fast and same and all(k in priced for k in keys)
         return fast, slow
 
@@ -95,9 +96,9 @@ def shared_with_reference(library_smiles: list[str], reference: Path | None, die
 def atoms(smiles: str) -> int:
     """Atoms of a SMILES' largest fragment, hydrogens included (0 where RDKit cannot read it: such a row
     costs nothing)."""
-    from rdkit import Chem, RDLogger
-    RDLogger.DisableLog("rdApp.*")
-    mol = Chem.MolFromSmiles(str(smiles))
+    from rdkit import Chem, rdBase
+    with rdBase.BlockLogs():               # the run quotes RDKit's reason for such a row, not this line
+        mol = Chem.MolFromSmiles(str(smiles))
     if mol is None:
         return 0
     return max(Chem.AddHs(frag).GetNumAtoms() for frag in Chem.GetMolFrags(mol, asMols=True))

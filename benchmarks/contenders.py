@@ -1,7 +1,9 @@
 """Computing only the contenders against computing every row, on a finished run's results.
 
     python benchmarks/contenders.py --results RUN/results [--config RUN/config/config.yaml]
-                                    [--library LIB.csv] [--top 20] [--cores 2] [--out table.json]
+                                    [--library LIB.csv] [--top 20] [--first-share 0.1] [--coverage 0.95]
+                                    [--cores 2] [--out table.json]
+    python benchmarks/contenders.py --markdown "label one" one.json "label two" two.json ...
 
 The run must have computed every row at the first ranking level (ranking.rows all). The rounds
 (dienes.contenders) are replayed in a scratch folder that sees the run's GFN2-xTB results, the
@@ -21,6 +23,7 @@ from __future__ import annotations
 import argparse
 import json
 import shutil
+import sys
 import tempfile
 from pathlib import Path
 
@@ -135,12 +138,37 @@ def compare(full, part) -> dict:
             "corrected_interval_covers_full": (round(float(np.mean(inside)), 3) if inside else None)}
 
 
+def markdown(labelled: list[str]) -> str:
+    """The docs/validation.md table from saved --out files, one line per (label, file)."""
+    lines = ["| correction start, first share, coverage | pairs (rounds) | core-s ratio | wall ratio | tier 1 "
+             "| top 10 | Spearman | largest change in top 20 | rows on corrected, covered "
+             "| correction: terms; LOO MAE, bound (kJ/mol) |", "|---" * 10 + "|"]
+    for label, path in zip(labelled[::2], labelled[1::2]):
+        t = json.loads(Path(path).read_text())
+        c = t.get("correction_last") or {}
+        covered = t["corrected_interval_covers_full"]
+        n_corr = t["rows_on_corrected"]
+        lines.append(
+            f"| {label} | {t['pairs_computed_rounds']} of {t['pairs']} ({', '.join(map(str, t['pairs_per_round']))}) "
+            f"| {t['cost_ratio']} | {t['single_point_wall_s_all'] / t['single_point_wall_s_rounds']:.2f} "
+            f"| {'identical' if t['tier1_identical'] else 'differs'} | {t['top10_overlap']}/10 | {t['spearman_all']} "
+            f"| {t['largest_change_top20']} | {n_corr}, {round(covered * n_corr) if covered is not None else 0} of {n_corr} "
+            f"| {', '.join(c.get('terms', []))}; {c.get('loo_mae_kJmol', float('nan')):.1f}, "
+            f"{c.get('bound_kJmol', float('nan')):.1f} |")
+    return "\n".join(lines)
+
+
 def main():
+    if "--markdown" in sys.argv[1:2]:
+        print(markdown(sys.argv[2:]))
+        return
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--results", required=True, help="a finished run's results folder (every row computed)")
     ap.add_argument("--config", help="its config (default: the settings its manifest recorded)")
     ap.add_argument("--library", help="rank this library instead (its rows must be in the run)")
     ap.add_argument("--top", type=int, help="ranking.contenders.top")
+    ap.add_argument("--first-share", type=float, help="ranking.contenders.first_share")
+    ap.add_argument("--coverage", type=float, help="ranking.contenders.coverage")
     ap.add_argument("--cores", type=int, default=2, help="cores for the wall-time estimate (default 2)")
     ap.add_argument("--out", help="write the figures as JSON here")
     args = ap.parse_args()
@@ -149,7 +177,8 @@ def main():
     conf = cfg.load(args.config).as_config() if args.config else recorded
     conf = conf | {"library": args.library or recorded["library"], "reference": recorded["reference"]}
     full_settings = cfg.resolve(conf | {"ranking": conf["ranking"] | {"rows": "all"}})
-    contenders = dict(conf["ranking"].get("contenders", {})) | ({"top": args.top} if args.top else {})
+    given = {"top": args.top, "first_share": args.first_share, "coverage": args.coverage}
+    contenders = dict(conf["ranking"].get("contenders", {})) | {k: v for k, v in given.items() if v is not None}
     part_settings = cfg.resolve(conf | {"ranking": conf["ranking"] | {"rows": "contenders",
                                                                       "contenders": contenders}})
     with tempfile.TemporaryDirectory() as tmp:

@@ -94,32 +94,24 @@ def _rank(args) -> int:
         overrides.append(f"reference={REPO / 'config' / 'reference_rates.csv'}")
     if args.dienophile:
         overrides.append(f"dienophile={args.dienophile}")
+    from . import settings as cfg
+    shipped = cfg.load(configfile, fallback=False)          # the config the run starts from
     if args.quick or args.rows is not None:
-        from . import settings as cfg
-        shipped = cfg.load(configfile, fallback=False)
         levels = [shipped.placing.name] if args.quick else list(shipped["ranking"]["levels"])
         overrides.append(f"ranking={{levels: [{', '.join(levels)}], rows: {'all' if args.quick else args.rows}}}")
     if args.backend:
-        from . import settings as cfg
-        shipped = cfg.load(configfile, fallback=False)
-        placing = shipped.placing
-        overrides.append(f"levels={{{placing.name}: {{program: xtb, backend: {args.backend}}}}}")
+        overrides.append(f"levels={{{shipped.placing.name}: {{program: xtb, backend: {args.backend}}}}}")
     overrides += condition_overrides(args) + (args.set or [])
     rows = "all"
     if not args.quick:
-        from . import settings as cfg
-        shipped = cfg.load(configfile, fallback=False)
-        if args.rows is not None:
-            shipped = shipped | {"ranking": dict(shipped["ranking"]) | {"rows": int(args.rows) if args.rows.isdigit()
-                                                                        else args.rows}}
-        rows = shipped.rows_mode
-    from . import settings as cfg
-    own = cfg.load(configfile, fallback=False)
-    given = {"dienophile": own["dienophile"], "reference": own["reference"]} | dict(
+        ranked = shipped if args.rows is None else shipped | {"ranking": dict(shipped["ranking"]) | {
+            "rows": int(args.rows) if args.rows.isdigit() else args.rows}}
+        rows = ranked.rows_mode
+    given = {"dienophile": shipped["dienophile"], "reference": shipped["reference"]} | dict(
         o.split("=", 1) for o in overrides if "=" in o)              # the last of a key wins, as in Snakemake
     print(run_estimate(library, workdir, args.cores, quick=args.quick, rows=rows, dienophile=given["dienophile"],
                        reference=workdir / given["reference"],
-                       level_key=own.priced_levels[0].key() if own.priced_levels else "*"), file=sys.stderr)
+                       level_key=shipped.priced_levels[0].key() if shipped.priced_levels else "*"), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
            "--directory", str(workdir), "--cores", str(args.cores), "--configfile", str(configfile),

@@ -4,12 +4,13 @@ Per-row costs in core-seconds, measured on a clean run of the demo library (READ
 `benchmarks/plan.py` on its results): the GFN2-xTB stage (conformers, optimisation, planar s-cis, transition
 structures) and the density-functional single points of one row, plus the reference set's
 one-off cost the first time a working directory sees it. A row already computed in the
-working directory (same SMILES in its results/manifest.json with status ok) costs nothing. A row's
-costs grow with its size: the diene's own part (conformers, minima) with its atoms, the rest with
-the atoms of the pair it makes with the run's dienophile, each as a power law measured on the
-benchmark library's run, so a catalogue of larger dienes or a larger dienophile is charged more
-than the demo. Flexibility and the share of invalid rows are taken as the demo's, so it is a guide
-within a factor of about two.
+working directory (same SMILES in its results/manifest.json with status ok) costs nothing. Each row is
+read as the run reads it (a row the library refuses costs nothing; each E/Z isomer it computes is
+charged) and charged by size: the diene's own part (conformers, minima) with its atoms, the rest
+with the atoms of the pair it makes with the run's dienophile and with its number of diene units,
+as power laws measured on the benchmark library's run, relative to the demo's average row. So a
+catalogue of larger dienes or a larger dienophile is charged more than the demo. Flexibility is
+taken as the demo's, so it is a guide within a factor of about two.
 """
 
 from __future__ import annotations
@@ -27,16 +28,18 @@ DFT_REFERENCE_ONCE_CORE_S = 890.0 * DFT_ROW_CORE_S / 88.0       # ... and at the
 PARALLEL_EFFICIENCY = 0.96      # measured on the demo: core-seconds / (wall x cores)
 # cost against size, fitted as power laws on the benchmark library's run (170 rows; 8-36 atoms a diene,
 # hydrogens included, 17-45 a pair with maleic anhydride): GFN2-xTB conformers against the diene's
-# atoms 3.3 (199 structures), transition structures against the pair's 3.0 (198); at the
+# atoms 3.3 (199 structures), transition structures against the pair's 3.0 (198; with the number of
+# diene units as a second term 2.6 and 1.0-1.3, scatter down from a factor of 1.8 to 1.5); at the
 # density-functional level the diene's minima 3.1 (50), transition structure + cycloadduct 2.8 (48).
 # One exponent serves all four; a part that depends on the diene alone keeps its share of the demo's
-# cost (from the same fits at the demo's size). A single row is off by a factor of about 1.6-2.6
+# cost (from the same fits at the demo's size). A single row is off by a factor of about 1.5-2.6
 # either way, a catalogue's total much less.
 SIZE_EXPONENT = 3.0
+SITES_EXPONENT = 1.0            # the pair's part grows with the diene units searched
 GFN2_DIENE_SHARE = 0.17         # conformer search: 2.6 of 15.2 core-s at the demo's size
 DFT_DIENE_SHARE = 0.15          # the diene's minima: 17 of 116 core-s at the demo's size
-DEMO_DIENE_ATOMS = 19.4         # the demo library's dienes, cube-mean (the size the per-row costs are for)
-DEMO_PAIR_ATOMS = 27.8          # ... and their pairs with maleic anhydride
+DEMO_DIENE_ATOMS = 19.4         # the demo's dienes and their pairs with maleic anhydride, cube-means:
+DEMO_PAIR_ATOMS = 27.8          # where the two parts have those shares
 CONTENDERS_SHARE = 1.0          # a contenders run: at most every row. Measured (benchmarks/contenders.py): 0.92 of
                                 # the core-seconds on the demo, 0.84 on 103 benchmark rows; less on catalogues of
                                 # many hundreds (estimated, docs/validation.md), so this stays an upper bound
@@ -104,16 +107,47 @@ def atoms(smiles: str) -> int:
     return max(Chem.AddHs(frag).GetNumAtoms() for frag in Chem.GetMolFrags(mol, asMols=True))
 
 
-def size_factors(library_smiles: list[str], dienophile_smiles: str) -> tuple[float, float]:
-    """(GFN2-xTB, density-functional) cost of these rows counted in demo rows: per row, the part that
-    depends on the diene alone scaled by (its atoms / the demo's)^SIZE_EXPONENT, the part with the
-    dienophile by (the pair's atoms / the demo's)^SIZE_EXPONENT; an unreadable row costs 0."""
+def _work(library_smiles: list[str], dienophile_smiles: str, limits=None) -> tuple[float, float, int]:
+    """(GFN2-xTB, density-functional) work of these rows under the size model, and how many rows will
+    be computed: only rows the library accepts (status ok), each of its E/Z isomers, the part with the
+    dienophile times its diene units."""
+    from .library import Limits, prepare_record
     dph = atoms(dienophile_smiles)
-    sizes = [n for n in map(atoms, library_smiles) if n]
-    diene = sum((n / DEMO_DIENE_ATOMS) ** SIZE_EXPONENT for n in sizes)
-    pair = sum(((n + dph) / DEMO_PAIR_ATOMS) ** SIZE_EXPONENT for n in sizes)
-    return (GFN2_DIENE_SHARE * diene + (1 - GFN2_DIENE_SHARE) * pair,
-            DFT_DIENE_SHARE * diene + (1 - DFT_DIENE_SHARE) * pair)
+    gfn2 = dft = 0.0
+    rows = 0
+    for smiles in library_smiles:
+        rec = prepare_record(0, "", str(smiles), {}, limits or Limits())
+        if rec.status != "ok":
+            continue
+        rows += 1
+        for iso in rec.isomers:
+            n = atoms(iso.smiles)
+            diene = (n / DEMO_DIENE_ATOMS) ** SIZE_EXPONENT
+            pair = ((n + dph) / DEMO_PAIR_ATOMS) ** SIZE_EXPONENT * max(iso.n_sites, 1) ** SITES_EXPONENT
+            gfn2 += GFN2_DIENE_SHARE * diene + (1 - GFN2_DIENE_SHARE) * pair
+            dft += DFT_DIENE_SHARE * diene + (1 - DFT_DIENE_SHARE) * pair
+    return gfn2, dft, rows
+
+
+def size_factors(library_smiles: list[str], dienophile_smiles: str, limits=None) -> tuple[float, float]:
+    """(GFN2-xTB, density-functional) cost of these rows counted in demo rows (the per-row costs above
+    are the demo's, per row the library accepts): their work under the size model over the work of
+    the demo's average accepted row with maleic anhydride. A row the library refuses costs nothing."""
+    gfn2, dft, _ = _work(library_smiles, dienophile_smiles, limits)
+    demo_gfn2, demo_dft, demo_rows = _demo_work()
+    return gfn2 / (demo_gfn2 / demo_rows), dft / (demo_dft / demo_rows)
+
+
+def _demo_work() -> tuple[float, float, int]:
+    from .library import read_rows
+    from .paths import workflow_root
+    if not _DEMO:
+        smiles = [s for _, s, _ in read_rows(workflow_root() / "config" / "demo_library.csv")]
+        _DEMO.extend(_work(smiles, "O=C1OC(=O)C=C1"))
+    return tuple(_DEMO)
+
+
+_DEMO: list = []
 
 
 def dft_share(rows, n_rows: int) -> tuple[float, str]:

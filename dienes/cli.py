@@ -110,7 +110,7 @@ def _rank(args) -> int:
     given = {"dienophile": shipped["dienophile"], "reference": shipped["reference"]} | dict(
         o.split("=", 1) for o in overrides if "=" in o)              # the last of a key wins, as in Snakemake
     print(run_estimate(library, workdir, args.cores, quick=args.quick, rows=rows, dienophile=given["dienophile"],
-                       reference=workdir / given["reference"],
+                       reference=workdir / given["reference"], limits=shipped["limits"],
                        level_key=shipped.priced_levels[0].key() if shipped.priced_levels else "*"), file=sys.stderr)
     # arguments go to Snakemake as a list: no shell ever sees a user string
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(REPO / "Snakefile"),
@@ -137,16 +137,18 @@ def _rank(args) -> int:
 
 
 def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="all",
-                 dienophile: str = "O=C1OC(=O)C=C1", reference: Path | None = None, level_key: str = "*") -> str:
+                 dienophile: str = "O=C1OC(=O)C=C1", reference: Path | None = None, level_key: str = "*",
+                 limits: dict | None = None) -> str:
     """One line before the run: rows to compute and the expected wall time (dienes.estimate), each row
     charged by the size of its pair with `dienophile` (a SMILES or a common name), a row the
     `reference` kinetics file computes anyway (same diene and dienophile) inside the reference set's cost;
-    `level_key`: the results folder of the first ranking level (estimate.rows_to_compute).
+    `level_key`: the results folder of the first ranking level (estimate.rows_to_compute); `limits`:
+    the config's caps on a diene (a row above them is refused, so it costs nothing).
     `rows`: what ranking.rows means ('all', 'contenders', N), or a function of the library's size
     that says it (Settings.rows_mode)."""
     from . import estimate
     from .dienophiles import smiles_of
-    from .library import read_rows
+    from .library import Limits, read_rows
     try:
         smiles = [s for _, s, _ in read_rows(library)]
     except (OSError, ValueError) as exc:
@@ -157,7 +159,8 @@ def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="al
     ref_done = ref_done if not quick else (ref_done[0], True)
     shared = set(estimate.shared_with_reference(smiles, reference, dienophile))   # in the reference set's cost
     fast, slow = [s for s in fast if s not in shared], [s for s in slow if s not in shared]
-    work = (estimate.size_factors(fast, dienophile)[0], estimate.size_factors(slow, dienophile)[1])
+    caps = Limits(**limits) if limits else None
+    work = (estimate.size_factors(fast, dienophile, caps)[0], estimate.size_factors(slow, dienophile, caps)[1])
     wall = estimate.wall_time_s(work, cores, quick, ref_done, share)
     new = len(fast) if quick else len(slow)       # a row still to compute at GFN2-xTB is at the next level too
     return (f"dienes: {len(smiles)} rows, {new} to compute{'' if all(ref_done) else ' plus the reference set (once)'}"

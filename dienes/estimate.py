@@ -4,7 +4,7 @@ Per-row costs in core-seconds, measured on a clean run of the demo library (READ
 `benchmarks/plan.py` on its results): the GFN2-xTB stage (conformers, optimisation, planar s-cis, transition
 structures) and the density-functional single points of one row, plus the reference set's
 one-off cost the first time a working directory sees it. A row already computed in the
-working directory (same SMILES in its results/manifest.json with status ok) costs nothing. Each row is
+working directory (same SMILES in its results/manifest.json, its result files on disk) costs nothing. Each row is
 read as the run reads it (a row the library refuses costs nothing; each E/Z isomer it computes is
 charged) and charged by size: the diene's own part (conformers, minima) with its atoms, the rest
 with the atoms of the pair it makes with the run's dienophile and with its number of diene units,
@@ -18,7 +18,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-GFN2_ROW_CORE_S = 23.0          # GFN2-xTB stage per library row
+GFN2_ROW_CORE_S = 23.0          # GFN2-xTB stage per library row the run accepts (status ok)
 # density-functional single points per library row (default level): 88 measured on the demo before
 # each pair also computed its cycloadduct, which costs about one transition-structure single point
 # (measured side by side on demo pairs: 0.9-1.3 times, median transition structure 48 s)
@@ -97,10 +97,9 @@ def shared_with_reference(library_smiles: list[str], reference: Path | None, die
 
 
 def atoms(smiles: str) -> int:
-    """Atoms of a SMILES' largest fragment, hydrogens included (0 where RDKit cannot read it: such a row
-    costs nothing)."""
+    """Atoms of a SMILES' largest fragment, hydrogens included (0 where RDKit cannot read it)."""
     from rdkit import Chem, rdBase
-    with rdBase.BlockLogs():               # the run quotes RDKit's reason for such a row, not this line
+    with rdBase.BlockLogs():               # the run quotes RDKit's reason for a bad row, not this line
         mol = Chem.MolFromSmiles(str(smiles))
     if mol is None:
         return 0

@@ -160,7 +160,8 @@ def run_estimate(library: Path, workdir: Path, cores: int, quick: bool, rows="al
     shared = set(estimate.shared_with_reference(smiles, reference, dienophile))   # in the reference set's cost
     fast, slow = [s for s in fast if s not in shared], [s for s in slow if s not in shared]
     caps = Limits(**limits) if limits else None
-    work = (estimate.size_factors(fast, dienophile, caps)[0], estimate.size_factors(slow, dienophile, caps)[1])
+    first = estimate.size_factors(fast, dienophile, caps)      # each row is read once where both lists agree
+    work = (first[0], (first if slow == fast else estimate.size_factors(slow, dienophile, caps))[1])
     wall = estimate.wall_time_s(work, cores, quick, ref_done, share)
     new = len(fast) if quick else len(slow)       # a row still to compute at GFN2-xTB is at the next level too
     return (f"dienes: {len(smiles)} rows, {new} to compute{'' if all(ref_done) else ' plus the reference set (once)'}"

@@ -83,14 +83,12 @@ def rows_to_compute(library_smiles: list[str], workdir: Path, dienophile_smiles:
 def shared_with_reference(library_smiles: list[str], reference: Path | None, dienophile_smiles: str) -> list[str]:
     """The rows of `library_smiles` the reference set computes anyway: the same diene (canonical SMILES)
     with the same dienophile. An unreadable reference file shares nothing (the run says why)."""
-    import csv
-
+    from .library import read_rows
     from .settings import canonical_smiles
     try:
-        with open(reference, newline="") as fh:
-            pairs = {(canonical_smiles(r.get("smiles") or ""), canonical_smiles(r.get("dienophile_smiles") or ""))
-                     for r in csv.DictReader(fh)}
-    except (OSError, TypeError, ValueError, csv.Error):
+        pairs = {(canonical_smiles(smiles), canonical_smiles(extra.get("dienophile_smiles") or ""))
+                 for _, smiles, extra in read_rows(reference, what="reference")}
+    except (OSError, TypeError, ValueError):
         return []
     dph = canonical_smiles(dienophile_smiles)
     return [s for s in library_smiles if (canonical_smiles(s), dph) in pairs]

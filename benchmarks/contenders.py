@@ -139,17 +139,20 @@ def compare(full, part) -> dict:
 
 
 def markdown(labelled: list[str]) -> str:
-    """The docs/validation.md table from saved --out files, one line per (label, file)."""
-    lines = ["| correction start, first share, coverage | pairs (rounds) | core-s ratio | wall ratio | tier 1 "
+    """The docs/validation.md table from saved --out files, one line per (label, file); the settings
+    each replay used are read from its file."""
+    lines = ["| library | correction start | top | first share | coverage | pairs (rounds) | core-s ratio | wall ratio | tier 1 "
              "| top 10 | Spearman | largest change in top 20 | rows on corrected, covered "
-             "| correction: terms; LOO MAE, bound (kJ/mol) |", "|---" * 10 + "|"]
+             "| correction: terms; LOO MAE, bound (kJ/mol) |", "|---" * 14 + "|"]
     for label, path in zip(labelled[::2], labelled[1::2]):
         t = json.loads(Path(path).read_text())
         c = t.get("correction_last") or {}
         covered = t["corrected_interval_covers_full"]
         n_corr = t["rows_on_corrected"]
+        given = t.get("settings") or {}
         lines.append(
-            f"| {label} | {t['pairs_computed_rounds']} of {t['pairs']} ({', '.join(map(str, t['pairs_per_round']))}) "
+            f"| {label} | {' | '.join(str(given.get(k, '?')) for k in ('start', 'top', 'first_share', 'coverage'))} "
+            f"| {t['pairs_computed_rounds']} of {t['pairs']} ({', '.join(map(str, t['pairs_per_round']))}) "
             f"| {t['cost_ratio']} | {t['single_point_wall_s_all'] / t['single_point_wall_s_rounds']:.2f} "
             f"| {'identical' if t['tier1_identical'] else 'differs'} | {t['top10_overlap']}/10 | {t['spearman_all']} "
             f"| {t['largest_change_top20']} | {n_corr}, {round(covered * n_corr) if covered is not None else 0} of {n_corr} "
@@ -204,7 +207,10 @@ def main():
         manifest = read_json(mpath)
         part = run.rank_tables(manifest, run.load_computed(manifest, part_settings, scratch), part_settings)
         chain = run.round_chain(scratch)
-    out = {"library_rows": len(manifest["records"]), "pairs": len(manifest["transitions"]),
+    corrected = next((lv for lv in part_settings.ranking_levels if lv.program == "correction"), None)
+    out = {"settings": {"start": corrected.base.label() if corrected and corrected.base else "GFN2-xTB",
+                        **{k: contenders.get(k) for k in ("top", "first_share", "coverage")}},
+           "library_rows": len(manifest["records"]), "pairs": len(manifest["transitions"]),
            "pairs_computed_rounds": replay.pairs, "rounds": len(chain),
            "pairs_per_round": [len(r["pairs"]) for r in chain],
            "cut_per_round": [r.get("cut_log10_k") for r in chain],

@@ -14,8 +14,12 @@ structure of the molecule (so aromatic systems such as furan or anthracene
 
 Double bonds of an isolated six-membered aromatic ring (benzene, pyridine)
 are not taken as diene bonds: breaking such an aromatic sextet is not a
-practical Diels-Alder reaction (common practice). Fused aromatics and
-five-membered heteroaromatics are kept and flagged ``aromatic``.
+practical Diels-Alder reaction (common practice). A six-membered ring that
+is aromatic only through an exocyclic double bond on one of its atoms
+(2-pyrone, 2-pyridone: the ring C=O) is not such a sextet: 2-pyrones and
+2-pyridones are established dienes (common practice), so their diene is
+kept. Fused aromatics, five- and seven-membered aromatic rings (furan,
+tropone) are kept; every such site is flagged ``aromatic``.
 """
 
 from __future__ import annotations
@@ -67,8 +71,15 @@ def _kekule_forms(mol: Chem.Mol) -> list[Chem.Mol]:
     return forms
 
 
+def _exocyclic_double_bond(mol: Chem.Mol, ring_atoms: set[int]) -> bool:
+    """True when an atom of the ring carries a double bond to an atom outside it (a ring C=O)."""
+    return any(b.GetBondType() == Chem.BondType.DOUBLE and b.GetOtherAtomIdx(i) not in ring_atoms
+               for i in ring_atoms for b in mol.GetAtomWithIdx(i).GetBonds())
+
+
 def _isolated_six_ring_bonds(mol: Chem.Mol) -> set[int]:
-    """Bond indices of aromatic six-membered rings fused to no other ring."""
+    """Bond indices of aromatic sextets: aromatic six-membered rings fused to no other ring and
+    without an exocyclic double bond (so benzene and pyridine, not 2-pyrone)."""
     ri = mol.GetRingInfo()
     bond_rings = [set(r) for r in ri.BondRings()]
     atom_rings = [set(r) for r in ri.AtomRings()]
@@ -77,7 +88,7 @@ def _isolated_six_ring_bonds(mol: Chem.Mol) -> set[int]:
         if len(ring) != 6 or not all(mol.GetBondWithIdx(b).GetIsAromatic() for b in ring):
             continue
         fused = any(len(atom_rings[k] & other) >= 2 for j, other in enumerate(atom_rings) if j != k)
-        if not fused:
+        if not fused and not _exocyclic_double_bond(mol, atom_rings[k]):
             out |= ring
     return out
 
@@ -138,7 +149,8 @@ def find_sites(mol: Chem.Mol) -> list[Site]:
             aromatic = any(mol.GetAtomWithIdx(i).GetIsAromatic() for i in atoms)
             kind = _classify(mol, atoms)
             if aromatic and kind == RING_OTHER and all(
-                    mol.GetAtomWithIdx(i).GetIsAromatic() for i in atoms):
-                continue  # spans two fused aromatic rings: not a diene unit
+                    mol.GetAtomWithIdx(i).GetIsAromatic() for i in atoms) and not any(
+                    set(atoms) <= set(ring) for ring in mol.GetRingInfo().AtomRings()):
+                continue  # spans two fused aromatic rings: not a diene unit (one ring of 7, tropone's, is)
             found[key] = Site(atoms, kind, aromatic)
     return [found[k] for k in sorted(found)]

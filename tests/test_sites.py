@@ -17,6 +17,12 @@ CASES = [
     ("C=C/C=C/C=C", 2, {ACYCLIC}, False),                  # 1,3,5-hexatriene: two sites
     ("C=CC1=CCCCC1", 1, {ACYCLIC}, False),                 # 1-vinylcyclohexene
     ("CO/C=C/C(=C)O[Si](C)(C)C", 1, {ACYCLIC}, False),     # silyloxy diene
+    # rings RDKit calls aromatic only through a ring C=O are dienes (common practice): 2-pyrone
+    # (C3-C6), methyl coumalate, N-methyl-2-pyridone; tropone across C2-C5 (two equivalent units)
+    ("O=c1cccco1", 1, {RING_S_CIS}, True),
+    ("COC(=O)c1ccc(=O)oc1", 1, {RING_S_CIS}, True),
+    ("Cn1ccccc1=O", 1, {RING_S_CIS}, True),
+    ("O=c1cccccc1", 2, {RING_OTHER}, True),
 ]
 
 
@@ -35,6 +41,8 @@ def test_site_classes(smiles, n, kinds, aromatic):
     "c1ccccc1",       # benzene: isolated aromatic sextet
     "C=Cc1ccccc1",    # styrene: would break the benzene ring
     "c1ccncc1",       # pyridine
+    "Oc1ccccn1",      # 2-hydroxypyridine: the aromatic tautomer of 2-pyridone
+    "O=c1ccocc1",     # 4-pyrone: its C=C bonds are not conjugated with each other
     "CCCC",
     "C=O",
 ])
@@ -50,6 +58,15 @@ def test_anthracene_has_its_9_10_site():
     termini = {frozenset(s.termini) for s in find_sites(mol)}
     assert frozenset(ch_central) in termini
     assert all(s.kind == RING_S_CIS for s in find_sites(mol))
+
+
+def test_pyrone_diene_is_the_ring_carbons():
+    # 2-pyrone adds a dienophile across C3 and C6 (common practice): the unit is the four ring
+    # carbons, C2 (the carbonyl carbon) is not in it
+    mol = Chem.MolFromSmiles("O=c1cccco1")
+    (site,) = find_sites(mol)
+    assert all(mol.GetAtomWithIdx(i).GetSymbol() == "C" and mol.GetAtomWithIdx(i).GetTotalNumHs() == 1
+               for i in site.atoms)
 
 
 def test_sites_independent_of_hydrogens_and_stable():

@@ -32,6 +32,16 @@ CLASS_NOTES = (
     ("cyclopentadiene", "[CX4;H1,H2;R1]1[CX3]=[CX3][CX3]=[CX3]1",
      "cyclopentadienes dimerise on standing at room temperature: crack or distil freshly and use "
      "at once (common practice)"),
+    ("2-pyrone", "O=c1[c;R1][c;R1][c;R1][c;R1]o1",
+     "2-pyrones are electron-poor dienes that need electron-rich or strained dienophiles or heat; "
+     "their bicyclic lactone adducts lose CO2 on warming (with an alkyne the product is a benzene) "
+     "(common practice)"),
+    ("2-pyridone", "O=c1[c;R1][c;R1][c;R1][c;R1][nX3]1",
+     "2-pyridones are reluctant dienes (their ring is partly aromatic): expect heat or high pressure "
+     "with most dienophiles (common practice)"),
+    ("tropone", "O=c1cccccc1",
+     "tropones give [6+4] as well as [4+2] cycloadducts (the [6+4] path dominates with "
+     "cyclopentadiene): expect more than one product (common practice)"),
     ("acene", "c1ccc2cc3ccccc3cc2c1",
      "anthracene adducts can revert at high temperature (retro-Diels-Alder above about 200 C for "
      "maleic anhydride adducts; common practice)"),

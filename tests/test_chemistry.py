@@ -12,6 +12,10 @@ from dienes.chemistry import chemistry_note, class_notes
     ("CN(C)/C=C/C=C", ["amino diene"]),
     ("C1=CCC=C1", ["cyclopentadiene"]),              # dimerises on standing
     ("c1ccc2cc3ccccc3cc2c1", ["acene"]),
+    ("COC(=O)c1ccc(=O)oc1", ["2-pyrone"]),            # methyl coumalate: adducts lose CO2 (common practice)
+    ("Cn1ccccc1=O", ["2-pyridone"]),                 # N-methyl-2-pyridone: reluctant diene (common practice)
+    ("O=c1cccccc1", ["tropone"]),                    # tropone: [6+4] beside [4+2] (common practice)
+    ("O=c1ccc2ccccc2o1", []),                        # coumarin: a dienophile far more often (common practice)
     ("C=CC=C", []),
     ("CC1(C)C=CC=C1", []),                           # 5,5-dimethylcyclopentadiene dimerises far more slowly (from memory)
     ("CC(=O)n1cccc1", []),                           # N-acylpyrroles favour the cycloadduct (common practice)

@@ -1,7 +1,7 @@
 """Read a diene library and standardise it: one record per input row, each with a status.
 
-Formats: CSV with columns ``id`` and ``smiles`` (other columns are carried
-through), ``.smi`` (SMILES then an optional id per line) and ``.sdf``.
+Formats: CSV with columns ``id`` and ``smiles`` (or the usual other headers
+for them, ``SMILES_COLUMNS`` and ``ID_COLUMNS``; other columns are carried through), ``.smi`` (SMILES then an optional id per line) and ``.sdf``.
 A file that cannot be read at all raises :class:`LibraryError` naming the
 file and the problem; every readable row becomes a :class:`Record`, whatever
 is wrong with it.
@@ -104,6 +104,26 @@ def _decode(path: Path) -> str:
                            "save the file as UTF-8 and run again") from None
 
 
+# headers a CSV's SMILES and id columns may carry, compared without case, spaces, '_', '-', '.' or '#'
+# (catalogues name them many ways; common practice); the first found wins, any others are carried through
+SMILES_COLUMNS = ("smiles", "canonical_smiles", "isomeric_smiles", "smiles_string")
+ID_COLUMNS = ("id", "compound_id", "mol_id", "molecule_id", "catalog_id", "catalogue_id", "catalog_number",
+              "catalog_no", "cat_no", "name", "compound", "compound_name", "title", "identifier")
+
+
+def _key(header: str) -> str:
+    return re.sub(r"[\s_.#-]+", "", header.lower())
+
+
+def _column(names: list[str], accepted: tuple[str, ...]) -> int | None:
+    """Index of the first accepted header present in `names` (None: none is)."""
+    keys = [_key(n) for n in names]
+    for want in accepted:
+        if _key(want) in keys:
+            return keys.index(_key(want))
+    return None
+
+
 def _read_csv(path: Path) -> list[tuple[str, str, dict]]:
     text = _decode(path)
     try:
@@ -116,12 +136,11 @@ def _read_csv(path: Path) -> list[tuple[str, str, dict]]:
     except StopIteration:
         raise LibraryError(f"{path}: the file is empty") from None
     names = [h.strip() for h in header]
-    lower = [n.lower() for n in names]
-    missing = [c for c in ("id", "smiles") if c not in lower]
-    if missing:
-        raise LibraryError(f"{path}: needs columns 'id' and 'smiles'; missing {missing}, "
-                           f"found {names}")
-    i_id, i_smi = lower.index("id"), lower.index("smiles")
+    i_smi, i_id = _column(names, SMILES_COLUMNS), _column(names, ID_COLUMNS)
+    if i_smi is None or i_id is None:
+        raise LibraryError(f"{path}: needs a column of SMILES (headed {', '.join(SMILES_COLUMNS)}) and one of ids "
+                           f"(headed {', '.join(ID_COLUMNS[:6])}, name, ...); found {names} (a list of SMILES "
+                           "without ids can be a .smi file)")
     rows = []
     for cells in reader:
         if not any(c.strip() for c in cells):
@@ -150,7 +169,10 @@ def _read_sdf(path: Path) -> list[tuple[str, str, dict]]:
                 rows.append(("", "", {"_sdf_error": "unreadable SDF record"}))
                 continue
             props = mol.GetPropsAsDict()
-            rid = str(props.pop("id", "") or (mol.GetProp("_Name") if mol.HasProp("_Name") else ""))
+            keys = list(props)
+            i_id = _column(keys, ID_COLUMNS)
+            rid = str((props.pop(keys[i_id]) if i_id is not None else "")
+                      or (mol.GetProp("_Name") if mol.HasProp("_Name") else ""))
             rows.append((rid.strip(), Chem.MolToSmiles(mol), {k: str(v) for k, v in props.items()}))
     return rows
 

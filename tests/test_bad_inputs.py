@@ -46,11 +46,26 @@ def test_every_row_gets_its_status_at_reading():
 
 @pytest.mark.parametrize("name,pattern", [
     ("bad_encoding.csv", "bad_encoding.csv: not UTF-8 text"),
-    ("no_smiles_column.csv", "no_smiles_column.csv: needs columns 'id' and 'smiles'"),
+    ("no_smiles_column.csv", "no_smiles_column.csv: needs a column of SMILES"),
 ])
 def test_unreadable_files_name_the_file_and_the_problem(name, pattern):
     with pytest.raises(LibraryError, match=pattern):
         read_library(DATA / name)
+
+
+@pytest.mark.parametrize("content", [
+    "Catalog No.,Name,Canonical SMILES\nC-1,butadiene,C=CC=C\nC-2,cyclopentadiene,C1=CCC=C1\n",
+    "\ufeffCompound ID;SMILES\nC-1;C=CC=C\nC-2;C1=CCC=C1\n",
+    "name\tisomeric_smiles\nC-1\tC=CC=C\nC-2\tC1=CCC=C1\n",
+])
+def test_catalogue_headers_for_ids_and_smiles_are_understood(tmp_path, content):
+    # suppliers head these columns in many ways, with ; or tab as separator and a byte-order mark
+    # from spreadsheet exports (common practice); the first id-like header is the id, others carried
+    path = tmp_path / "catalogue.csv"
+    path.write_text(content, encoding="utf-8")
+    records = read_library(path)
+    assert [(r.id, r.status) for r in records] == [("C-1", "ok"), ("C-2", "ok")]
+    assert Chem.MolToSmiles(Chem.MolFromSmiles(records[1].smiles)) == "C1=CCC=C1"
 
 
 @pytest.mark.parametrize("name,content,pattern", [

@@ -25,7 +25,7 @@ def test_csv_rows_in_order_with_status(tmp_path):
 
 def test_missing_columns_is_one_clear_error(tmp_path):
     p = _write(tmp_path, "lib.csv", "name,structure\nx,C=CC=C\n")
-    with pytest.raises(LibraryError, match="lib.csv.*'id' and 'smiles'"):
+    with pytest.raises(LibraryError, match="lib.csv: needs a column of SMILES.*found \\['name', 'structure'\\]"):
         read_library(p)
 
 
@@ -43,9 +43,15 @@ def test_smi_and_sdf(tmp_path):
     m = Chem.MolFromSmiles("C=CC(C)=C")
     m.SetProp("_Name", "isoprene")
     w.write(m)
+    m = Chem.MolFromSmiles("C1=CCC=C1")
+    m.SetProp("_Name", "cyclopentadiene")
+    m.SetProp("Catalog ID", "C-7")          # a supplier's id property wins over the record name
+    m.SetProp("Purity", "97%")
+    w.write(m)
     w.close()
     recs = read_library(sdf)
     assert recs[0].id == "isoprene" and recs[0].status == "ok"
+    assert recs[1].id == "C-7" and recs[1].status == "ok" and recs[1].extra == {"Purity": "97%"}
 
 
 def test_unspecified_diene_stereo_is_enumerated():

@@ -41,8 +41,8 @@ DFT_DIENE_SHARE = 0.15          # the diene's minima: 17 of 116 core-s at the de
 DEMO_DIENE_ATOMS = 19.4         # the demo's dienes and their pairs with maleic anhydride, cube-means:
 DEMO_PAIR_ATOMS = 27.8          # where the two parts have those shares
 CONTENDERS_SHARE = 1.0          # a contenders run: at most every row. Measured (benchmarks/contenders.py): 0.92 of
-                                # the core-seconds on the demo, 0.84 on 103 benchmark rows; less on catalogues of
-                                # many hundreds (estimated, docs/validation.md), so this stays an upper bound
+                                # the core-seconds on the demo, 0.75 on the 170-row benchmark library; less on
+                                # catalogues of many hundreds (estimated, docs/validation.md); kept an upper bound
 
 
 def rows_to_compute(library_smiles: list[str], workdir: Path, dienophile_smiles: str | None = None,

@@ -1,7 +1,8 @@
 """Read a diene library and standardise it: one record per input row, each with a status.
 
 Formats: CSV with columns ``id`` and ``smiles`` (or the usual other headers
-for them, ``SMILES_COLUMNS`` and ``ID_COLUMNS``; other columns are carried through), ``.smi`` (SMILES then an optional id per line) and ``.sdf``.
+for them, ``SMILES_COLUMNS`` and ``ID_COLUMNS``; other columns are carried
+through), ``.smi`` (SMILES then an optional id per line) and ``.sdf``.
 A file that cannot be read at all raises :class:`LibraryError` naming the
 file and the problem; every readable row becomes a :class:`Record`, whatever
 is wrong with it.

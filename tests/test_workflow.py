@@ -342,7 +342,7 @@ def test_unreadable_library_stops_before_computing(tmp_path):
     (tmp_path / "bad.csv").write_text("name,structure\nx,C=CC=C\n")
     run = _snakemake(tmp_path, "--config", "library=bad.csv")
     assert run.returncode != 0
-    assert "bad.csv" in run.stderr and "'id' and 'smiles'" in run.stderr
+    assert "bad.csv" in run.stderr and "needs a column of SMILES" in run.stderr
     assert not (tmp_path / "results" / "structures").exists()
 
 
